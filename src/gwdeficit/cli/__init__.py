@@ -7,6 +7,8 @@ Heavy libraries (numpy, pandas, astropy, pyarrow) are imported inside the comman
 
 from __future__ import annotations
 
+import os
+
 import typer
 
 from gwdeficit import __version__
@@ -41,7 +43,8 @@ def _root(
     ),
 ) -> None:
     """Mass-deficit budgets of compact-binary mergers (exit codes: 0 ok, 2 user error, 1 bug)."""
-    _common.STATE.debug = debug or _common.STATE.debug
+    # Per invocation (several runs can share one process): the flag, else $GWDEFICIT_DEBUG.
+    _common.STATE.debug = debug or bool(os.environ.get("GWDEFICIT_DEBUG"))
 
 
 # Command registration: one module per command. ---------------------------------------------
