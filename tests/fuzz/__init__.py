@@ -1,0 +1,1 @@
+"""Hostile-input fuzzing and repeated-kill checks (strategies in ``strategies.py``)."""
