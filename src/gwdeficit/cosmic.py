@@ -1,0 +1,890 @@
+"""Cosmic budget: the gravitational-wave background energy density and the mass-density history.
+
+All mergers between today and ``zmax`` are folded with a merger-rate density ``R(z)`` (comoving,
+per unit source-frame time) and the population mean per merger of a quantity (energy radiated in
+gravitational waves, baryonic mass ejected, their sum):
+
+- comoving mass density lost by mergers between redshifts ``z1 < z2``:
+  ``rho_M = integral_{z1}^{z2} R(z) <dM> |dt/dz| dz``;
+- present energy density of the background (Phinney 2001, arXiv:astro-ph/0108028, the theorem
+  of his section 2): ``rho_gw c^2 = integral_0^zmax R(z) <E_rad> / (1+z) |dt/dz| dz``, the extra
+  ``1/(1+z)`` being the redshift of each graviton's energy; ``Omega_gw = rho_gw / rho_crit``;
+- the inspiral spectrum ``Omega_gw(f)`` (same theorem, frequency-resolved).
+
+``|dt/dz| = 1 / ((1+z) H(z))`` comes from the astropy cosmology. Inside this module everything is
+plain float64 numpy in Msun (energies in Msun c^2), Mpc, years and Hz; rates enter in
+Gpc^-3 yr^-1 as quoted in the literature.
+
+The physics functions (:func:`redshift_kernels`, :func:`inspiral_dedf`,
+:func:`omega_gw_inspiral`, ...) take plain arrays; :func:`budget_table` builds the tidy output
+table from draws; :func:`cosmic_budget` wires a remnants table, a rate model and a cosmology
+together.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Collection, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any, Protocol
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from gwdeficit.rates import RateEvolution
+from gwdeficit.schema import OptionError, SchemaError
+
+if TYPE_CHECKING:
+    import pandas as pd
+    from astropy.cosmology import FLRW
+
+# --------------------------------------------------------------------------------------------
+# Constants (plain floats in the package's internal units)
+# --------------------------------------------------------------------------------------------
+
+#: G Msun / c^3 in seconds, from the IAU 2015 nominal solar mass parameter (astropy constants
+#: GM_sun = 1.3271244e20 m^3 s^-2, IAU 2015 Resolution B3) and the exact speed of light.
+T_SUN_S = 1.3271244e20 / 299792458.0**3
+
+#: Number of Mpc^3 in one Gpc^3.
+MPC3_PER_GPC3 = 1.0e9
+
+#: Points of the internal redshift grid (uniform in ln(1+z)); odd, for Simpson's rule.
+ZGRID_POINTS = 4001
+
+#: Every ``ZGRID_STRIDE``-th grid point is written to the output table (201 rows per quantity).
+ZGRID_STRIDE = 20
+
+#: Above this redshift the Madau & Dickinson 2014 fit is an extrapolation (fitted 0 < z < 8).
+MADAU_DICKINSON_ZMAX = 8.0
+
+#: Default number of rows used for the population-averaged inspiral spectrum.
+SPECTRUM_ROWS = 20000
+
+#: Quantiles written to the tables: median, 68% and 90% central intervals.
+QUANTILES = {"median": 0.5, "lo68": 0.16, "hi68": 0.84, "lo90": 0.05, "hi90": 0.95}
+
+TABLE_COLUMNS: tuple[str, ...] = (
+    "section",  # "total", "history" (against z and lookback time) or "spectrum" (against f)
+    "kind",  # BBH, NSBH, BNS, or "all" when the table mixes kinds
+    "quantity",
+    "unit",  # astropy unit string of median..hi90 in this row
+    "z",
+    "lookback_gyr",
+    "f_hz",
+    *QUANTILES,
+)
+
+#: Quantities averaged per merger by the bootstrap (remnant-table columns, Msun or Msun c^2).
+MEAN_COLUMNS: tuple[str, ...] = ("erad_msun", "ejected_msun", "deficit_msun")
+
+#: Column added to a copy of the remnants table: inspiral energy up to the ISCO cut-off.
+INSPIRAL_COLUMN = "einsp_msun"
+
+
+# --------------------------------------------------------------------------------------------
+# Binary and spectrum formulas
+# --------------------------------------------------------------------------------------------
+
+
+def chirp_mass(m1_msun: ArrayLike, m2_msun: ArrayLike) -> NDArray[np.float64]:
+    """Chirp mass ``Mc = (m1 m2)^(3/5) / (m1 + m2)^(1/5)`` in Msun.
+
+    The mass combination that sets the leading-order (quadrupole) inspiral phase and amplitude,
+    Peters & Mathews 1963, Phys. Rev. 131, 435; valid for any positive masses.
+    """
+    m1 = np.asarray(m1_msun, dtype=np.float64)
+    m2 = np.asarray(m2_msun, dtype=np.float64)
+    return (m1 * m2) ** 0.6 / (m1 + m2) ** 0.2
+
+
+def isco_gw_frequency(mass_msun: ArrayLike) -> NDArray[np.float64]:
+    """Gravitational-wave frequency (Hz) at the Schwarzschild innermost stable circular orbit.
+
+    ``f = c^3 / (6^(3/2) pi G M)``: twice the orbital frequency ``sqrt(G M / r^3)`` at
+    ``r = 6 G M / c^2``, the ISCO of a non-spinning black hole (e.g. Misner, Thorne & Wheeler
+    1973, Gravitation, section 25.6). About 4.40 kHz (Msun / M). Used here with the *remnant*
+    mass as the end of the inspiral; the remnant's spin is ignored (a Kerr ISCO of a prograde
+    remnant would move the cut-off up by a factor of about two for chi_f ~ 0.7).
+    """
+    m = np.asarray(mass_msun, dtype=np.float64)
+    return 1.0 / (6.0**1.5 * math.pi * T_SUN_S * m)
+
+
+def inspiral_dedf(f_hz: ArrayLike, mchirp_msun: ArrayLike) -> NDArray[np.float64]:
+    """Source-frame inspiral energy spectrum dE/df in Msun c^2 per Hz.
+
+    ``dE/df = (pi^(2/3) / 3) (G Mc)^(5/3) f^(-1/3)`` (in units of c^2: ``(pi^(2/3)/3)
+    T_sun^(2/3) (Mc/Msun)^(5/3) f^(-1/3)`` Msun c^2 / Hz), the leading-order quadrupole
+    spectrum of a circular binary (Peters & Mathews 1963, Phys. Rev. 131, 435; in this form in
+    Phinney 2001, arXiv:astro-ph/0108028). Newtonian order: valid well below the last stable
+    orbit; callers cut it at :func:`isco_gw_frequency`. No cut-off is applied here.
+    """
+    f = np.asarray(f_hz, dtype=np.float64)
+    mc = np.asarray(mchirp_msun, dtype=np.float64)
+    return (
+        (math.pi ** (2.0 / 3.0) / 3.0)
+        * T_SUN_S ** (2.0 / 3.0)
+        * mc ** (5.0 / 3.0)
+        * f ** (-1.0 / 3.0)
+    )
+
+
+def inspiral_energy(mchirp_msun: ArrayLike, fcut_hz: ArrayLike) -> NDArray[np.float64]:
+    """Energy (Msun c^2) radiated by the quadrupole inspiral from f = 0 up to ``fcut_hz``.
+
+    The integral of :func:`inspiral_dedf`: ``E = (1/2) (pi T_sun f_cut)^(2/3) (Mc/Msun)^(5/3)``.
+    With ``f_cut`` the Schwarzschild ISCO frequency of the total mass this equals the Newtonian
+    binding energy ``eta M c^2 / 12`` at ``r = 6 G M / c^2``. Same range as
+    :func:`inspiral_dedf`.
+    """
+    mc = np.asarray(mchirp_msun, dtype=np.float64)
+    fc = np.asarray(fcut_hz, dtype=np.float64)
+    return 0.5 * (math.pi * T_SUN_S * fc) ** (2.0 / 3.0) * mc ** (5.0 / 3.0)
+
+
+# --------------------------------------------------------------------------------------------
+# Redshift integrals
+# --------------------------------------------------------------------------------------------
+
+
+def redshift_grid(zmax: float, n: int = ZGRID_POINTS) -> NDArray[np.float64]:
+    """``n`` redshifts from 0 to ``zmax``, uniform in ``ln(1+z)`` (dense at low z)."""
+    if not (np.isfinite(zmax) and zmax > 0):
+        raise OptionError(f"zmax {zmax!r} must be a finite number > 0")
+    if n < 3:
+        raise OptionError(f"a redshift grid needs at least 3 points, not {n}")
+    return np.expm1(np.linspace(0.0, math.log1p(zmax), n))
+
+
+def abs_dt_dz(z: ArrayLike, cosmology: FLRW) -> NDArray[np.float64]:
+    """``|dt/dz| = 1 / ((1+z) H(z))`` in years (source-frame cosmic time per unit redshift).
+
+    Standard FLRW relation (e.g. Hogg 1999, arXiv:astro-ph/9905116, eq. 30 integrand), with
+    ``H(z) = H0 E(z)`` from the astropy cosmology (any redshift it supports).
+    """
+    z = np.asarray(z, dtype=np.float64)
+    hubble_time_yr = float(cosmology.hubble_time.to_value("yr"))
+    return hubble_time_yr * np.asarray(cosmology.inv_efunc(z), dtype=np.float64) / (1.0 + z)
+
+
+def cumulative_in_redshift(z: ArrayLike, y: ArrayLike) -> NDArray[np.float64]:
+    """``integral_0^z y(z') dz'`` at every point of a grid made by :func:`redshift_grid`.
+
+    Composite Simpson's rule (scipy ``cumulative_simpson``) in ``u = ln(1+z)``, where the
+    integrand becomes ``y (1+z)``; ``y`` may carry leading axes (the last axis is redshift).
+    """
+    from scipy.integrate import cumulative_simpson
+
+    z = np.asarray(z, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    return cumulative_simpson(y * (1.0 + z), x=np.log1p(z), axis=-1, initial=0.0)
+
+
+@dataclass(frozen=True)
+class RedshiftKernels:
+    """Redshift integrals of a rate shape, per unit rate density at ``z_ref`` (all in years).
+
+    Multiplying a kernel by a rate density (Gpc^-3 yr^-1) and a mean per merger (Msun) gives a
+    comoving density in Msun Gpc^-3. Every array is on the grid ``z`` (from 0 to ``zmax``).
+
+    - ``rate_factor``: R(z) / R(z_ref)
+    - ``lookback_gyr``: lookback time, integral of |dt/dz| (Gyr)
+    - ``number``: integral_0^z R/R_ref |dt/dz| dz (yr): mergers per comoving volume since z
+    - ``energy``: the same with an extra 1/(1+z): contribution to today's background
+    - ``spectral``: the same with (1+z)^(-1/3): the z-integral of the inspiral spectrum
+    """
+
+    z: NDArray[np.float64]
+    rate_factor: NDArray[np.float64]
+    lookback_gyr: NDArray[np.float64]
+    number: NDArray[np.float64]
+    energy: NDArray[np.float64]
+    spectral: NDArray[np.float64]
+
+    @property
+    def zmax(self) -> float:
+        return float(self.z[-1])
+
+
+def redshift_kernels(
+    evolution: RateEvolution, cosmology: FLRW, zmax: float, n: int = ZGRID_POINTS
+) -> RedshiftKernels:
+    """Cumulative redshift integrals of ``R(z)/R(z_ref) |dt/dz|`` with weights 1, 1/(1+z) and
+    (1+z)^(-1/3), from 0 to every grid redshift up to ``zmax`` (see :class:`RedshiftKernels`).
+
+    The 1/(1+z) weight is Phinney 2001 (arXiv:astro-ph/0108028, section 2): energy emitted at z
+    is redshifted by the expansion before it reaches today. Range: as the rate evolution and the
+    cosmology (the Madau & Dickinson 2014 shape is fitted for 0 < z < 8).
+    """
+    z = redshift_grid(zmax, n)
+    dtdz = abs_dt_dz(z, cosmology)
+    factor = np.asarray(evolution.factor(z), dtype=np.float64)
+    weights = np.stack(
+        [dtdz, factor * dtdz, factor * dtdz / (1.0 + z), factor * dtdz * (1.0 + z) ** (-1.0 / 3.0)]
+    )
+    cum = cumulative_in_redshift(z, weights)
+    return RedshiftKernels(
+        z=z,
+        rate_factor=factor,
+        lookback_gyr=cum[0] / 1e9,
+        number=cum[1],
+        energy=cum[2],
+        spectral=cum[3],
+    )
+
+
+def critical_density(cosmology: FLRW) -> float:
+    """Present critical density ``3 H0^2 / (8 pi G)`` in Msun Mpc^-3 (astropy cosmology)."""
+    return float(cosmology.critical_density0.to_value("solMass / Mpc3"))
+
+
+# --------------------------------------------------------------------------------------------
+# Spectrum
+# --------------------------------------------------------------------------------------------
+
+
+def omega_gw_inspiral(
+    f_hz: ArrayLike,
+    mchirp_msun: ArrayLike,
+    fcut_hz: ArrayLike,
+    weights: ArrayLike,
+    kernels: RedshiftKernels,
+    rho_crit_msun_mpc3: float,
+    rate_gpc3_yr: float = 1.0,
+    chunk: int = 2_000_000,
+) -> NDArray[np.float64]:
+    """Inspiral background spectrum ``Omega_gw(f)`` at observed frequencies ``f_hz``.
+
+    Phinney 2001 (arXiv:astro-ph/0108028, section 2):
+    ``Omega_gw(f) = f / (rho_c c^2) integral_0^zmax R(z) |dt/dz| <dE/df_s>(f (1+z)) dz``, with
+    the weighted population mean of the source-frame spectrum :func:`inspiral_dedf` of each row
+    (chirp mass ``mchirp_msun``), cut off above its ``fcut_hz`` (source frame). For one row the
+    cut-off truncates the redshift integral at ``1 + z = fcut / f``, so the integral is read
+    exactly from the cumulative kernel ``kernels.spectral`` (linear interpolation in ln(1+z));
+    below ``min(fcut) / (1 + zmax)`` the spectrum is exactly proportional to ``f^(2/3)``.
+    ``rate_gpc3_yr`` is the rate density at the evolution's ``z_ref``. Inspiral only (no
+    merger-ringdown part); Newtonian order.
+    """
+    f = np.atleast_1d(np.asarray(f_hz, dtype=np.float64))
+    mc = np.atleast_1d(np.asarray(mchirp_msun, dtype=np.float64))
+    fc = np.atleast_1d(np.asarray(fcut_hz, dtype=np.float64))
+    w = np.atleast_1d(np.asarray(weights, dtype=np.float64))
+    if not (mc.shape == fc.shape == w.shape) or mc.ndim != 1:
+        raise OptionError("chirp masses, cut-off frequencies and weights must be 1-D, same length")
+    total_w = float(w.sum())
+    if not (total_w > 0 and np.all(w >= 0)):
+        raise OptionError("spectrum weights must be >= 0 with a positive sum")
+    wn = w / total_w
+    u_grid = np.log1p(kernels.z)
+    amp = inspiral_dedf(1.0, mc) * wn  # per row: (pi^(2/3)/3) T^(2/3) Mc^(5/3) * weight
+    out = np.zeros(f.shape, dtype=np.float64)
+    step = max(1, chunk // max(1, f.size))
+    for start in range(0, mc.size, step):  # chunks of rows bound the (f x rows) memory
+        sl = slice(start, start + step)
+        zcut = np.clip(fc[None, sl] / f[:, None] - 1.0, 0.0, kernels.zmax)
+        k = np.interp(np.log1p(zcut), u_grid, kernels.spectral)
+        out += k @ amp[sl]
+    return rate_gpc3_yr / MPC3_PER_GPC3 * f ** (2.0 / 3.0) * out / rho_crit_msun_mpc3
+
+
+def spectrum_integral(f_hz: ArrayLike, omega: ArrayLike) -> float:
+    """``integral Omega_gw(f) d ln f`` from 0 to ``f_hz[-1]`` (Simpson's rule in ln f).
+
+    Below the first grid point the spectrum is taken as the pure inspiral power law
+    ``f^(2/3)``, whose integral is ``(3/2) Omega_gw(f_0)`` (exact when ``f_0`` lies below every
+    redshifted cut-off). Equals Omega_gw of the inspiral energy when the grid reaches the
+    highest cut-off (Phinney 2001: the spectrum integrates to the energy density).
+    """
+    from scipy.integrate import simpson
+
+    f = np.asarray(f_hz, dtype=np.float64)
+    om = np.asarray(omega, dtype=np.float64)
+    return float(simpson(om, x=np.log(f)) + 1.5 * om[0])
+
+
+def frequency_grid(f_min: float, f_max: float, per_decade: int = 25) -> NDArray[np.float64]:
+    """Log-spaced observed frequencies from ``f_min`` to ``f_max`` (Hz), both included."""
+    if not (np.isfinite(f_min) and np.isfinite(f_max) and 0 < f_min < f_max):
+        raise OptionError(f"frequency range {f_min!r}..{f_max!r} Hz must satisfy 0 < min < max")
+    n = max(3, math.ceil(per_decade * math.log10(f_max / f_min)) + 1)
+    return np.geomspace(f_min, f_max, n)
+
+
+# --------------------------------------------------------------------------------------------
+# Cosmology
+# --------------------------------------------------------------------------------------------
+
+
+def resolve_cosmology(spec: Any = None) -> FLRW:
+    """An astropy cosmology from ``None`` (Planck18), a realization name, a cosmology object, or
+    a metadata dict ``{"name": ..., "H0": ..., "Om0": ...}`` (schema.META_COSMOLOGY).
+
+    A dict whose name is not one of astropy's realizations is rebuilt as a flat LambdaCDM from
+    its ``H0`` and ``Om0`` (and ``Tcmb0`` if given); otherwise :class:`OptionError`.
+    """
+    from astropy import cosmology as ac
+
+    if spec is None:
+        return ac.Planck18
+    if isinstance(spec, ac.FLRW):
+        return spec
+    name = spec.get("name") if isinstance(spec, Mapping) else spec
+    if isinstance(name, str) and name in ac.realizations.available:
+        return getattr(ac.realizations, name)
+    if isinstance(spec, Mapping) and "H0" in spec and "Om0" in spec:
+        try:
+            return ac.FlatLambdaCDM(
+                H0=float(spec["H0"]), Om0=float(spec["Om0"]), Tcmb0=float(spec.get("Tcmb0", 0.0))
+            )
+        except (TypeError, ValueError) as exc:
+            raise OptionError(f"cosmology {dict(spec)!r} cannot be rebuilt: {exc}") from exc
+    raise OptionError(
+        f"cosmology {name!r} is not known; valid names: {', '.join(ac.realizations.available)}"
+    )
+
+
+def describe_cosmology(cosmology: FLRW) -> dict[str, Any]:
+    """JSON-able description of a cosmology for schema.META_COSMOLOGY."""
+    return {
+        "name": cosmology.name,
+        "H0": float(cosmology.H0.to_value("km / (Mpc s)")),
+        "Om0": float(cosmology.Om0),
+        "Tcmb0": float(cosmology.Tcmb0.to_value("K")),
+        "class": type(cosmology).__name__,
+    }
+
+
+# --------------------------------------------------------------------------------------------
+# Tidy output table from draws
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class SpectrumShape:
+    """Population-mean inspiral spectrum per unit rate, with the inspiral energy behind it.
+
+    ``omega_per_rate``: Omega_gw(f) for a rate density of 1 Gpc^-3 yr^-1 at z_ref;
+    ``einsp_mean_msun``: the weighted mean inspiral energy per merger of the rows used (the
+    spectrum's amplitude is proportional to it); ``rows``: how many rows it was computed from.
+    """
+
+    f_hz: NDArray[np.float64]
+    omega_per_rate: NDArray[np.float64]
+    einsp_mean_msun: float
+    rows: int
+
+
+@dataclass(frozen=True)
+class DrawBlock:
+    """Draws of one output quantity: ``values`` has shape (n_draws, m) for the m points of its
+    axis (redshift, frequency, or a single total)."""
+
+    section: str
+    quantity: str
+    unit: str
+    values: NDArray[np.float64]
+    z: NDArray[np.float64] | None = None
+    lookback_gyr: NDArray[np.float64] | None = None
+    f_hz: NDArray[np.float64] | None = None
+
+    @property
+    def key(self) -> tuple[str, str]:
+        return (self.section, self.quantity)
+
+
+def energy_density_erg_cm3(msun_c2_per_mpc3: ArrayLike = 1.0) -> NDArray[np.float64]:
+    """Convert an energy density from Msun c^2 Mpc^-3 to erg cm^-3 (astropy units, constants)."""
+    import astropy.constants as const
+    import astropy.units as u
+
+    factor = (u.Msun * const.c**2 / u.Mpc**3).to_value("erg / cm3")
+    return np.asarray(msun_c2_per_mpc3, dtype=np.float64) * factor
+
+
+def budget_draws(
+    kernels: RedshiftKernels,
+    rate_draws: ArrayLike,
+    mean_draws: Mapping[str, ArrayLike],
+    rho_crit_msun_mpc3: float,
+    spectrum: SpectrumShape | None = None,
+    stride: int = ZGRID_STRIDE,
+) -> list[DrawBlock]:
+    """Every output quantity, per draw, from paired draws of the rate and the per-merger means.
+
+    ``rate_draws``: rate density at the evolution's z_ref (Gpc^-3 yr^-1), one per draw;
+    ``mean_draws``: per quantity in :data:`MEAN_COLUMNS` (and optionally
+    :data:`INSPIRAL_COLUMN`), the population mean per merger (Msun, or Msun c^2) in the same
+    draws. Draw ``d`` pairs ``rate_draws[d]`` with every ``mean_draws[q][d]``.
+
+    Quantities (``section``):
+
+    - ``total``: ``merger_density`` (Mpc^-3, mergers since zmax), ``<q>_density`` (Msun Mpc^-3,
+      comoving mass density lost since zmax, q = erad, ejected, deficit), ``gw_energy_density``
+      (erg cm^-3) and ``gw_energy_density_msun`` (Msun c^2 Mpc^-3, written "solMass / Mpc3"),
+      ``omega_gw`` and, with a spectrum, ``omega_gw_inspiral`` (from the inspiral energy);
+    - ``history`` against z and lookback time: ``merger_rate`` (Gpc^-3 yr^-1), ``<q>_rate``
+      (Msun Mpc^-3 yr^-1), ``<q>_density_before`` (lost by mergers between zmax and z, i.e. up
+      to that epoch), ``<q>_density_since`` (lost by mergers between z and today) and
+      ``omega_gw_since`` (today's Omega_gw from mergers below z);
+    - ``spectrum`` against observed frequency: ``omega_gw_inspiral``. Its spread comes from the
+      rate draws and the bootstrap of the mean inspiral energy (the amplitude); its shape is
+      the population mean of the rows used (:class:`SpectrumShape`).
+    """
+    rate = np.asarray(rate_draws, dtype=np.float64).reshape(-1)
+    n = rate.size
+    means = {k: np.asarray(v, dtype=np.float64).reshape(-1) for k, v in mean_draws.items()}
+    for k, v in means.items():
+        if v.size != n:
+            raise OptionError(f"{v.size} draws of {k!r} but {n} rate draws; they must pair up")
+    idx = np.unique(np.r_[np.arange(0, kernels.z.size, stride), kernels.z.size - 1])
+    zk = {"z": kernels.z[idx], "lookback_gyr": kernels.lookback_gyr[idx]}
+    rate_mpc = rate / MPC3_PER_GPC3  # Mpc^-3 yr^-1 at z_ref
+    rho_c = float(rho_crit_msun_mpc3)
+    present = [q for q in MEAN_COLUMNS if q in means]
+    out: list[DrawBlock] = []
+
+    def total(quantity: str, unit: str, values: NDArray[np.float64]) -> None:
+        out.append(DrawBlock("total", quantity, unit, values.reshape(n, 1)))
+
+    def history(quantity: str, unit: str, scale: NDArray[np.float64], kernel: NDArray) -> None:
+        out.append(DrawBlock("history", quantity, unit, np.outer(scale, kernel), **zk))
+
+    total("merger_density", "1 / Mpc3", rate_mpc * kernels.number[-1])
+    for col in present:
+        name = col.removesuffix("_msun")
+        total(f"{name}_density", "solMass / Mpc3", rate_mpc * means[col] * kernels.number[-1])
+    if "erad_msun" in means:
+        rho_gw = rate_mpc * means["erad_msun"] * kernels.energy[-1]  # Msun c^2 / Mpc^3
+        total("gw_energy_density", "erg / cm3", energy_density_erg_cm3(rho_gw))
+        total("gw_energy_density_msun", "solMass / Mpc3", rho_gw)
+        total("omega_gw", "", rho_gw / rho_c)
+    if spectrum is not None and INSPIRAL_COLUMN in means:
+        total(
+            "omega_gw_inspiral", "", rate_mpc * means[INSPIRAL_COLUMN] * kernels.energy[-1] / rho_c
+        )
+
+    history("merger_rate", "1 / (Gpc3 yr)", rate, kernels.rate_factor[idx])
+    number = kernels.number[idx]
+    for col in present:
+        name = col.removesuffix("_msun")
+        scale = rate_mpc * means[col]
+        history(f"{name}_rate", "solMass / (Mpc3 yr)", scale, kernels.rate_factor[idx])
+        history(f"{name}_density_before", "solMass / Mpc3", scale, kernels.number[-1] - number)
+        history(f"{name}_density_since", "solMass / Mpc3", scale, number)
+    if "erad_msun" in means:
+        history("omega_gw_since", "", rate_mpc * means["erad_msun"] / rho_c, kernels.energy[idx])
+
+    if spectrum is not None:
+        if INSPIRAL_COLUMN in means and spectrum.einsp_mean_msun > 0:
+            amp = rate * means[INSPIRAL_COLUMN] / spectrum.einsp_mean_msun
+        else:
+            amp = rate
+        out.append(
+            DrawBlock(
+                "spectrum",
+                "omega_gw_inspiral",
+                "",
+                np.outer(amp, spectrum.omega_per_rate),
+                f_hz=spectrum.f_hz,
+            )
+        )
+    return out
+
+
+def sum_draws(groups: Sequence[Sequence[DrawBlock]]) -> list[DrawBlock]:
+    """Per-draw sum over independent populations (kinds) of the quantities all of them have.
+
+    Every quantity of :func:`budget_draws` is additive over populations (rates, densities,
+    Omega_gw); the groups must share their redshift and frequency axes.
+    """
+    if not groups:
+        return []
+    keyed = [{b.key: b for b in g} for g in groups]
+    common = [k for k in keyed[0] if all(k in g for g in keyed[1:])]
+    out = []
+    for k in common:
+        first = keyed[0][k]
+        values = np.sum([g[k].values for g in keyed], axis=0)
+        out.append(
+            DrawBlock(
+                first.section,
+                first.quantity,
+                first.unit,
+                values,
+                first.z,
+                first.lookback_gyr,
+                first.f_hz,
+            )
+        )
+    return out
+
+
+def budget_table(blocks_by_kind: Mapping[str, Sequence[DrawBlock]]) -> pd.DataFrame:
+    """The tidy cosmic-budget table: one row per kind x quantity x axis point.
+
+    Columns :data:`TABLE_COLUMNS`: section, kind, quantity, unit, z, lookback_gyr (Gyr), f_hz
+    (Hz) (NaN where not the row's axis), then the median and the 68% and 90% central intervals
+    over draws (quantiles 0.16/0.84 and 0.05/0.95).
+    """
+    import pandas as pd
+
+    frames = []
+    for kind, blocks in blocks_by_kind.items():
+        for b in blocks:
+            qs = np.quantile(b.values, list(QUANTILES.values()), axis=0)
+            m = qs.shape[1]
+            nan = np.full(m, np.nan)
+            frames.append(
+                pd.DataFrame(
+                    {
+                        "section": b.section,
+                        "kind": kind,
+                        "quantity": b.quantity,
+                        "unit": b.unit,
+                        "z": nan if b.z is None else b.z,
+                        "lookback_gyr": nan if b.lookback_gyr is None else b.lookback_gyr,
+                        "f_hz": nan if b.f_hz is None else b.f_hz,
+                        **{name: qs[i] for i, name in enumerate(QUANTILES)},
+                    }
+                )
+            )
+    if not frames:
+        return pd.DataFrame({c: pd.Series(dtype="float64") for c in TABLE_COLUMNS})
+    return pd.concat(frames, ignore_index=True)[list(TABLE_COLUMNS)]
+
+
+# --------------------------------------------------------------------------------------------
+# The API on a remnants table
+# --------------------------------------------------------------------------------------------
+
+
+class RateModelLike(Protocol):
+    """What the cosmic budget needs of a rate model (``gwdeficit.rates.RateModel``)."""
+
+    evolution: RateEvolution
+
+    @property
+    def median(self) -> float: ...
+
+    def draw(self, n: int, rng: np.random.Generator) -> NDArray[np.float64]: ...
+
+    def describe(self) -> dict: ...
+
+
+#: Columns of the remnants table the cosmic budget reads.
+REQUIRED_COLUMNS: tuple[str, ...] = (
+    "event",
+    "sample",
+    "weight",
+    "kind",
+    "m1_msun",
+    "m2_msun",
+    "mf_msun",
+    *MEAN_COLUMNS,
+)
+
+
+@dataclass(frozen=True)
+class CosmicBudget:
+    """Result of :func:`cosmic_budget`.
+
+    ``table``: the tidy table (:func:`budget_table`); ``summary``: JSON-able headline numbers,
+    counts and notes; ``meta``: Parquet metadata for ``cosmic.parquet`` (units, rate model,
+    cosmology, provenance with this stage's record, summary); ``warnings``: what the user must
+    be told (extrapolations, rows left out).
+    """
+
+    table: pd.DataFrame
+    summary: dict[str, Any]
+    meta: dict[str, Any]
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+
+def _bootstrap_means(
+    remnants: pd.DataFrame,
+    columns: Sequence[str],
+    n_draws: int,
+    rng: np.random.Generator,
+    sources: Collection[str],
+    selection: str,
+) -> dict[str, NDArray[np.float64]]:
+    from gwdeficit.resample import bootstrap_means
+
+    return bootstrap_means(remnants, columns, n_draws, rng, sources=sources, selection=selection)
+
+
+def merger_weights(remnants: pd.DataFrame) -> NDArray[np.float64]:
+    """Row weights of the population mean per merger: each event counts once, its rows
+    weighted by ``weight`` within the event (normalised to sum to one per event)."""
+    import pandas as pd
+
+    w = remnants["weight"].to_numpy(dtype=np.float64)
+    codes = pd.factorize(remnants["event"])[0]
+    per_event = np.bincount(codes, weights=w)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = np.where(per_event[codes] > 0, w / per_event[codes], 0.0)
+    return out
+
+
+def _estimated_mask(df: pd.DataFrame) -> NDArray[np.bool_]:
+    """Rows with remnant physics (status 'estimated', or finite erad when there is no status)."""
+    if "remnant_status" in df.columns:
+        ok = df["remnant_status"].astype(str).eq("estimated").to_numpy()
+    else:
+        ok = np.ones(len(df), dtype=bool)
+    return ok & np.isfinite(df["erad_msun"].to_numpy(dtype=np.float64))
+
+
+def _spectrum_shape(
+    rows: pd.DataFrame,
+    f_hz: NDArray[np.float64],
+    kernels: RedshiftKernels,
+    rho_c: float,
+    max_rows: int,
+    rng: np.random.Generator,
+) -> SpectrumShape:
+    mc = chirp_mass(rows["m1_msun"].to_numpy(np.float64), rows["m2_msun"].to_numpy(np.float64))
+    fcut = isco_gw_frequency(rows["mf_msun"].to_numpy(np.float64))
+    w = merger_weights(rows)
+    if mc.size > max_rows:  # uniform subsample keeping each row's weight (ratio estimator)
+        keep = np.sort(rng.choice(mc.size, size=max_rows, replace=False))
+        mc, fcut, w = mc[keep], fcut[keep], w[keep]
+    omega = omega_gw_inspiral(f_hz, mc, fcut, w, kernels, rho_c)
+    einsp = float(np.sum(w * inspiral_energy(mc, fcut)) / np.sum(w))
+    return SpectrumShape(f_hz=f_hz, omega_per_rate=omega, einsp_mean_msun=einsp, rows=mc.size)
+
+
+def _interval(values: NDArray[np.float64]) -> dict[str, float]:
+    qs = np.quantile(values, list(QUANTILES.values()))
+    return {name: float(qs[i]) for i, name in enumerate(QUANTILES)}
+
+
+def cosmic_budget(
+    remnants: pd.DataFrame,
+    rate_model: RateModelLike | Mapping[str, RateModelLike],
+    cosmology: Any = None,
+    *,
+    zmax: float = 10.0,
+    n_draws: int = 2000,
+    seed: int | None = 0,
+    rng: np.random.Generator | None = None,
+    spectrum: bool = True,
+    f_min_hz: float = 1e-5,
+    per_decade: int = 40,
+    spectrum_rows: int = SPECTRUM_ROWS,
+    sources: Collection[str] = ("catalogue", "posterior", "rate", "fits"),
+    selection: str = "none",
+    inputs: Mapping[str, str] | None = None,
+    source_name: str = "remnants table",
+    bootstrap: Callable[..., Mapping[str, ArrayLike]] | None = None,
+) -> CosmicBudget:
+    """Gravitational-wave energy density and mass-density history of a merging population.
+
+    ``remnants``: the remnants table (schema.REMNANT_COLUMNS with the catalogue columns);
+    ``rate_model``: one rate model for the whole table, or a mapping kind -> rate model (each
+    kind with its own rate and evolution; kinds without a rate, or without estimated rows, are
+    left out and said so; the kinds are then also summed as "all"); ``cosmology``: an astropy
+    cosmology, a realization name or a META_COSMOLOGY dict (default: the table's metadata, else
+    Planck18). Per draw (``n_draws``, seeded by ``seed`` or the given ``rng``), a rate is drawn
+    from the model and the population means per merger of erad, ejected and deficit (and of the
+    inspiral energy up to the remnant's Schwarzschild ISCO) come from
+    ``resample.bootstrap_means`` with the error ``sources`` switched on (``"rate"`` off holds the
+    rate at the model's median). Formulas: :func:`redshift_kernels`, :func:`omega_gw_inspiral`,
+    :func:`budget_draws`. ``inputs`` ({path: sha256}) goes into this stage's provenance record.
+    """
+    from gwdeficit.schema import (
+        META_COSMOLOGY,
+        META_PROVENANCE,
+        META_RATE_MODEL,
+        META_SUMMARY,
+        META_UNITS,
+    )
+    from gwdeficit.workdir import merge_provenance, provenance_record
+
+    missing = [c for c in REQUIRED_COLUMNS if c not in remnants.columns]
+    if missing:
+        raise SchemaError(
+            f"{source_name}: missing column(s) {', '.join(missing)}; the cosmic budget needs a "
+            "remnants table (run 'gwdeficit remnant' first)"
+        )
+    if not (isinstance(n_draws, int | np.integer) and n_draws >= 1):
+        raise OptionError(f"--draws {n_draws!r}: must be an integer >= 1")
+    if not (np.isfinite(zmax) and 0 < zmax <= 1000):
+        raise OptionError(f"--zmax {zmax!r}: must be a number in (0, 1000]")
+    if spectrum_rows < 1:
+        raise OptionError(f"spectrum_rows {spectrum_rows!r}: must be >= 1")
+    rng = np.random.default_rng(seed) if rng is None else rng
+    cosmo = resolve_cosmology(
+        cosmology if cosmology is not None else remnants.attrs.get(META_COSMOLOGY)
+    )
+    rho_c = critical_density(cosmo)
+    means_fn = bootstrap or _bootstrap_means
+    warnings: list[str] = []
+
+    # Groups: (label, rows, model)
+    kinds_present = sorted(set(remnants["kind"].astype(str)))
+    groups: list[tuple[str, pd.DataFrame, RateModelLike]] = []
+    if isinstance(rate_model, Mapping):
+        for k in sorted(set(rate_model) - set(kinds_present)):
+            warnings.append(f"a rate was given for {k} but the table has no {k} rows; left out")
+        for k in kinds_present:
+            if k not in rate_model:
+                n_k = int((remnants["kind"].astype(str) == k).sum())
+                warnings.append(f"no rate given for {k}: its {n_k} row(s) are left out")
+                continue
+            groups.append((k, remnants[remnants["kind"].astype(str) == k], rate_model[k]))
+    else:
+        label = kinds_present[0] if len(kinds_present) == 1 else "all"
+        groups.append((label, remnants, rate_model))
+
+    counts: dict[str, dict[str, int]] = {}
+    used: list[tuple[str, pd.DataFrame, RateModelLike]] = []
+    for label, rows, model in groups:
+        ok = _estimated_mask(rows)
+        n_bad = int((~ok).sum())
+        counts[label] = {
+            "rows": len(rows),
+            "rows_used": int(ok.sum()),
+            "rows_not_estimated": n_bad,
+            "events": int(rows["event"].nunique()),
+            "events_used": int(rows.loc[ok, "event"].nunique()),
+        }
+        if n_bad:
+            warnings.append(
+                f"{label}: {n_bad} of {len(rows)} row(s) have no remnant estimate "
+                "(remnant_status not 'estimated'); left out of the mean per merger"
+            )
+        if not ok.any():
+            warnings.append(f"{label}: no row with a remnant estimate; kind left out")
+            continue
+        used.append((label, rows[ok], model))
+    if not used:
+        raise OptionError(f"{source_name}: no population with both estimated rows and a rate")
+
+    for label, _, model in used:
+        ev = model.evolution
+        if ev.kind == "madau-dickinson" and zmax > MADAU_DICKINSON_ZMAX:
+            warnings.append(
+                f"{label}: the Madau & Dickinson 2014 shape is fitted for 0 < z < 8; "
+                f"integrating to zmax = {zmax:g} extrapolates it"
+            )
+
+    kernel_cache: dict[RateEvolution, RedshiftKernels] = {}
+    f_grid = None
+    if spectrum:
+        fmax = max(
+            float(np.nanmax(isco_gw_frequency(r["mf_msun"].to_numpy(np.float64))))
+            for _, r, _ in used
+        )
+        f_grid = frequency_grid(f_min_hz, fmax, per_decade)
+        warnings.append(
+            "spectrum: inspiral only (quadrupole dE/df up to the Schwarzschild ISCO of the "
+            "remnant mass); no merger-ringdown part"
+        )
+        if any(r["kind"].astype(str).isin(["BNS", "NSBH"]).any() for _, r, _ in used):
+            warnings.append(
+                "spectrum: for neutron-star binaries the ISCO cut-off ignores tidal disruption "
+                "and contact, which end the inspiral earlier"
+            )
+
+    blocks: dict[str, list[DrawBlock]] = {}
+    details: dict[str, dict[str, Any]] = {}
+    for label, rows, model in used:
+        ev = model.evolution
+        if ev not in kernel_cache:
+            kernel_cache[ev] = redshift_kernels(ev, cosmo, zmax)
+        kernels = kernel_cache[ev]
+        frame = rows.copy()
+        frame[INSPIRAL_COLUMN] = inspiral_energy(
+            chirp_mass(
+                frame["m1_msun"].to_numpy(np.float64), frame["m2_msun"].to_numpy(np.float64)
+            ),
+            isco_gw_frequency(frame["mf_msun"].to_numpy(np.float64)),
+        )
+        columns = [*MEAN_COLUMNS, INSPIRAL_COLUMN] if spectrum else list(MEAN_COLUMNS)
+        if "rate" in sources:
+            rates = np.asarray(model.draw(n_draws, rng), dtype=np.float64).reshape(-1)
+        else:
+            rates = np.full(n_draws, float(model.median))
+        stat_sources = [s for s in sources if s != "rate"]
+        means = means_fn(frame, columns, n_draws, rng, sources=stat_sources, selection=selection)
+        shape = None
+        if spectrum and f_grid is not None:
+            shape = _spectrum_shape(frame, f_grid, kernels, rho_c, spectrum_rows, rng)
+            if shape.rows < len(frame):
+                warnings.append(
+                    f"{label}: spectrum shape from a random {shape.rows} of {len(frame)} rows"
+                )
+        blocks[label] = budget_draws(kernels, rates, means, rho_c, shape)
+        details[label] = {
+            "rate_model": model.describe(),
+            "mean_per_merger_msun": {c: _interval(np.asarray(means[c])) for c in columns},
+            "spectrum_rows": None if shape is None else shape.rows,
+        }
+    if len(used) > 1:
+        blocks["all"] = sum_draws(list(blocks.values()))
+
+    table = budget_table(blocks)
+    some_kernels = next(iter(kernel_cache.values()))
+    totals: dict[str, dict[str, Any]] = {}
+    for label, bl in blocks.items():
+        totals[label] = {
+            b.quantity: {"unit": b.unit, **_interval(b.values[:, 0])}
+            for b in bl
+            if b.section == "total"
+        }
+        spec = [b for b in bl if b.section == "spectrum"]
+        if spec and "omega_gw_inspiral" in totals[label]:
+            integral = spectrum_integral(spec[0].f_hz, np.median(spec[0].values, axis=0))
+            ref = totals[label]["omega_gw_inspiral"]["median"]
+            totals[label]["spectrum_integral_rel_diff"] = float(integral / ref - 1.0)
+    summary: dict[str, Any] = {
+        "source": source_name,
+        "zmax": float(zmax),
+        "lookback_gyr_at_zmax": float(some_kernels.lookback_gyr[-1]),
+        "cosmology": describe_cosmology(cosmo),
+        "critical_density_msun_mpc3": rho_c,
+        "draws": int(n_draws),
+        "seed": seed,
+        "sources": sorted(sources),
+        "selection": selection,
+        "kinds": details,
+        "counts": counts,
+        "totals": totals,
+        "spectrum": None
+        if f_grid is None
+        else {
+            "f_min_hz": float(f_grid[0]),
+            "f_max_hz": float(f_grid[-1]),
+            "points": f_grid.size,
+            "model": "inspiral only, quadrupole dE/df up to the remnant's Schwarzschild ISCO",
+        },
+        "warnings": list(warnings),
+    }
+    units = {"z": "", "lookback_gyr": "Gyr", "f_hz": "Hz"}
+    units.update(dict(zip(table["quantity"], table["unit"], strict=True)))
+    record = provenance_record(
+        "cosmic",
+        inputs=inputs,
+        zmax=float(zmax),
+        draws=int(n_draws),
+        seed=seed,
+        spectrum=bool(spectrum),
+        f_min_hz=float(f_min_hz),
+        sources=sorted(sources),
+        selection=selection,
+    )
+    rate_meta: Any
+    if isinstance(rate_model, Mapping):
+        rate_meta = {k: m.describe() for k, m in rate_model.items()}
+    else:
+        rate_meta = rate_model.describe()
+    meta = {
+        META_UNITS: units,
+        META_RATE_MODEL: rate_meta,
+        META_COSMOLOGY: describe_cosmology(cosmo),
+        META_PROVENANCE: merge_provenance(remnants.attrs, record),
+        META_SUMMARY: summary,
+    }
+    return CosmicBudget(table=table, summary=summary, meta=meta, warnings=tuple(warnings))
