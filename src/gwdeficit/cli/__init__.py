@@ -49,6 +49,9 @@ def _root(
 
 # Command registration: one module per command. ---------------------------------------------
 # (each command module adds two lines here: import it, then app.command("name")(module.fn))
+from gwdeficit.cli import plot as _plot  # noqa: E402
+
+app.command("plot")(_plot.plot)
 
 
 def main() -> None:
