@@ -1,0 +1,339 @@
+"""Remnants of mergers involving neutron stars (NSBH and BNS): one vectorised entry point,
+:func:`ns_remnant`, that the remnant stage calls for NS rows.
+
+Mass bookkeeping (gravitational versus baryonic mass)
+-----------------------------------------------------
+A neutron star of gravitational mass M_g has a larger baryonic (rest) mass
+M_b = M_g + BE, with the binding energy BE from Lattimer & Prakash 2001 (ApJ 550, 426:
+BE / M_g = 0.6 C / (1 - 0.5 C)) or Timmes, Woosley & Weaver 1996 (ApJ 457, 834:
+BE = 0.075 M_g^2), see :func:`gwdeficit.fits.ns_eos.baryonic_mass`.
+
+The published ejecta, disk and remnant-matter fits give BARYONIC masses, and ``ejected_msun`` is
+that baryonic mass left outside the final compact object (unbound ejecta plus bound disk and
+tail). Its gravitational-mass equivalent ``ejected_grav_msun`` takes each ejected baryon to carry
+the mean gravitational-to-baryonic mass ratio of the neutron-star matter it came from:
+
+    ejected_grav = ejected * sum(M_g,NS) / sum(M_b,NS)
+
+(for an NSBH the sums run over the one neutron star). It neglects the kinetic energy of
+unbound ejecta and the orbital binding of the disk (each a few per cent of its rest mass;
+common practice, no source). The gravitational bookkeeping then closes exactly:
+
+    m1 + m2 = mf + erad + ejected_grav
+
+and the baryonic bookkeeping of a BNS is mb1 + mb2 = mb_remnant + ejected. The catalogue-wide
+``deficit_msun`` is erad + ejected (baryonic), as the schema defines it; it exceeds
+m1 + m2 - mf by ejected - ejected_grav, the binding-energy share of the ejecta.
+
+Tidal information
+-----------------
+Where a row carries lambda (lambda2 for the NS of an NSBH, both for a BNS) it is used and the
+compactness follows from the C-Love relation ``eos_relation``; where it is missing, the caller's
+``ns_radius_km`` gives the compactness and lambda follows from the same relation. Rows with
+neither are not estimated (no silent default); the keys ``tidal_source1/2`` and
+``eos_relation`` record what was used.
+
+What is estimated per kind
+--------------------------
+- NSBH, no matter left outside the BH (Foucart, Hinderer & Nissanke 2018 gives zero): the
+  binary-black-hole fits apply (``bbh_remnant``), ejected = 0.
+- NSBH, disrupted (matter left outside): ejected from FHN 2018; the final BH mass, spin and
+  radiated energy are NOT estimated (no published fit whose coefficients could be verified),
+  status ``not_estimated:nsbh_disrupted_no_verified_bh_fit``.
+- BNS: erad is the PN inspiral energy to contact, a LOWER BOUND (``erad_lower_bound`` True);
+  ejected = dynamical ejecta (Dietrich & Ujevic 2017) + disk (Radice et al. 2018);
+  mf from the bookkeeping above; chif not estimated (NaN); remnant kind from Bauswein et al.
+  2013 and Breu & Rezzolla 2016 when the caller gives M_TOV (and R_1.6 or a radius).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from typing import Any
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from gwdeficit.fits import bns as _bns
+from gwdeficit.fits import ns_eos as _eos
+from gwdeficit.fits import nsbh as _nsbh
+from gwdeficit.schema import OptionError
+
+FloatArray = NDArray[np.float64]
+BbhRemnant = Callable[..., Mapping[str, ArrayLike]]
+
+NS_KINDS = ("NSBH", "BNS")
+
+STATUS_ESTIMATED = "estimated"
+STATUS_NO_TIDAL = "not_estimated:no_tidal_deformability_or_radius"
+STATUS_DISRUPTED = "not_estimated:nsbh_disrupted_no_verified_bh_fit"
+STATUS_NO_BBH = "not_estimated:no_bbh_remnant_function"
+STATUS_BAD_INPUT = "not_estimated:non_finite_input"
+
+ERAD_BBH = "bbh-fits"
+ERAD_PN_CONTACT = "pn3-tidal-to-contact"
+ERAD_NONE = "none"
+
+
+def _kerr_isco_radius(chi: FloatArray) -> FloatArray:
+    """Kerr ISCO radius in units of the BH mass for signed aligned spin chi (prograde > 0)."""
+    from gwdeficit.fits import isco
+
+    return np.asarray(isco.isco_radius(chi), dtype=np.float64)
+
+
+def _as_float(a: ArrayLike, shape: tuple[int, ...], name: str) -> FloatArray:
+    try:
+        out = np.broadcast_to(np.asarray(a, dtype=np.float64), shape)
+    except ValueError as exc:
+        raise OptionError(f"{name}: shape {np.shape(a)} does not match {shape}") from exc
+    return np.array(out, dtype=np.float64)  # writable copy
+
+
+def ns_remnant(
+    m1_msun: ArrayLike,
+    m2_msun: ArrayLike,
+    chi1: ArrayLike,
+    chi2: ArrayLike,
+    tilt1_rad: ArrayLike,
+    tilt2_rad: ArrayLike,
+    lambda1: ArrayLike,
+    lambda2: ArrayLike,
+    kind: ArrayLike,
+    *,
+    phi12_rad: ArrayLike | None = None,
+    ns_radius_km: ArrayLike | None = None,
+    eos_relation: str = _eos.DEFAULT_C_LOVE,
+    baryonic_relation: str = _eos.DEFAULT_BARYONIC,
+    mtov_msun: float | ArrayLike | None = None,
+    r16_km: float | ArrayLike | None = None,
+    bbh_remnant: BbhRemnant | None = None,
+) -> dict[str, NDArray[Any]]:
+    """Remnant mass, spin, radiated energy and ejected mass of NSBH and BNS mergers, per row.
+
+    Parameters (arrays broadcast to one shape; units in the names): ``m1_msun >= m2_msun``
+    source-frame gravitational masses (for NSBH body 1 is the black hole); spin magnitudes and
+    tilts (rad); ``lambda1``/``lambda2`` dimensionless tidal deformabilities, NaN where unknown
+    (lambda1 of an NSBH is ignored); ``kind`` "NSBH" or "BNS".
+    Keywords: ``ns_radius_km`` neutron-star radius used where lambda is missing (a fixed-radius
+    EOS approximation); ``eos_relation`` the C-Love relation (``"yagi-yunes-2017"``,
+    ``"maselli-2013"``); ``baryonic_relation`` (``"lattimer-prakash-2001"``,
+    ``"timmes-woosley-weaver-1996"``); ``mtov_msun`` and ``r16_km`` EOS parameters for the BNS
+    remnant kind (``r16_km`` defaults to ``ns_radius_km``); ``bbh_remnant`` callable
+    ``(m1, m2, chi1, chi2, tilt1, tilt2, phi12) -> {"mf_msun", "chif", "erad_msun", ...}`` for
+    the non-disrupted NSBH limit.
+
+    Returns a dict of arrays of the input shape: ``mf_msun``, ``chif``, ``erad_msun``,
+    ``ejected_msun`` (baryonic), ``ejected_grav_msun``, ``deficit_msun`` (erad + ejected),
+    ``remnant_kind``, ``in_fit_range``, ``disrupted``, ``remnant_status``, ``erad_method``,
+    ``erad_lower_bound``, ``vkick_kms``, ``mb1_msun``, ``mb2_msun`` (NaN for a BH),
+    ``mb_remnant_msun`` (BNS), ``lambda1_used``, ``lambda2_used``, ``compactness1``,
+    ``compactness2``, ``tidal_source1``, ``tidal_source2``, ``remnant_baryonic_frac`` (NSBH,
+    FHN 2018), ``ejecta_dyn_msun``, ``disk_msun``, ``mthresh_msun`` (BNS prompt-collapse mass),
+    ``eos_relation``, ``baryonic_relation``. See the module docstring for the bookkeeping and
+    for what is not estimated.
+    """
+    kind_arr = np.asarray(kind).astype(str)
+    shape = np.broadcast_shapes(
+        *(np.shape(a) for a in (m1_msun, m2_msun, chi1, chi2, tilt1_rad, tilt2_rad)),
+        np.shape(lambda1),
+        np.shape(lambda2),
+        kind_arr.shape,
+    )
+    m1 = _as_float(m1_msun, shape, "m1_msun")
+    m2 = _as_float(m2_msun, shape, "m2_msun")
+    c1, c2 = _as_float(chi1, shape, "chi1"), _as_float(chi2, shape, "chi2")
+    t1, t2 = _as_float(tilt1_rad, shape, "tilt1_rad"), _as_float(tilt2_rad, shape, "tilt2_rad")
+    l1, l2 = _as_float(lambda1, shape, "lambda1"), _as_float(lambda2, shape, "lambda2")
+    phi12 = _as_float(np.nan if phi12_rad is None else phi12_rad, shape, "phi12_rad")
+    kind_arr = np.broadcast_to(kind_arr, shape)
+    bad_kind = ~np.isin(kind_arr, NS_KINDS)
+    if bad_kind.any():
+        found = sorted(set(kind_arr[bad_kind].tolist()))
+        raise OptionError(f"ns_remnant handles kinds {', '.join(NS_KINDS)} only; got {found}")
+    _eos.c_love_relation(eos_relation)  # validate the names before any work
+    if baryonic_relation not in _eos.BARYONIC_RELATIONS:
+        raise OptionError(
+            f"baryonic-mass relation {baryonic_relation!r} is not known; valid: "
+            + ", ".join(_eos.BARYONIC_RELATIONS)
+        )
+    with np.errstate(invalid="ignore"):
+        if np.any((m1 <= 0) | (m2 <= 0)):
+            raise OptionError("masses must be positive")
+    is_nsbh = kind_arr == "NSBH"
+    is_bns = ~is_nsbh
+    finite = np.isfinite(m1) & np.isfinite(m2) & np.isfinite(c1) & np.isfinite(t1)
+    finite &= np.where(is_bns, np.isfinite(c2) & np.isfinite(t2), True)
+
+    nan = np.full(shape, np.nan)
+    out: dict[str, NDArray[Any]] = {
+        "mf_msun": nan.copy(),
+        "chif": nan.copy(),
+        "erad_msun": nan.copy(),
+        "ejected_msun": nan.copy(),
+        "ejected_grav_msun": nan.copy(),
+        "vkick_kms": nan.copy(),
+        "in_fit_range": np.zeros(shape, dtype=bool),
+        "disrupted": np.zeros(shape, dtype=bool),
+        "remnant_kind": np.full(shape, "", dtype="<U4"),
+        "remnant_status": np.full(shape, STATUS_BAD_INPUT, dtype=object),
+        "erad_method": np.full(shape, ERAD_NONE, dtype=object),
+        "erad_lower_bound": np.zeros(shape, dtype=bool),
+        "remnant_baryonic_frac": nan.copy(),
+        "ejecta_dyn_msun": nan.copy(),
+        "disk_msun": nan.copy(),
+        "mthresh_msun": nan.copy(),
+        "mb_remnant_msun": nan.copy(),
+    }
+
+    # Neutron-star properties: body 2 is a NS in both kinds, body 1 only in a BNS.
+    # (the BH of an NSBH is masked to NaN so that no stellar radius is applied to it)
+    ns1 = _eos.resolve_neutron_stars(
+        np.where(is_bns, m1, np.nan),
+        np.where(is_bns, l1, np.nan),
+        ns_radius_km=ns_radius_km,
+        eos_relation=eos_relation,
+        baryonic_relation=baryonic_relation,
+    )
+    ns2 = _eos.resolve_neutron_stars(
+        m2,
+        l2,
+        ns_radius_km=ns_radius_km,
+        eos_relation=eos_relation,
+        baryonic_relation=baryonic_relation,
+    )
+    bh1 = is_nsbh
+    out["mb1_msun"] = np.where(bh1, np.nan, ns1.mb_msun)
+    out["mb2_msun"] = ns2.mb_msun.copy()
+    out["lambda1_used"] = np.where(bh1, 0.0, ns1.lam)
+    out["lambda2_used"] = ns2.lam.copy()
+    out["compactness1"] = np.where(bh1, np.nan, ns1.compactness)
+    out["compactness2"] = ns2.compactness.copy()
+    out["tidal_source1"] = np.where(bh1, "bh", ns1.source).astype(object)
+    out["tidal_source2"] = ns2.source.astype(object)
+    out["eos_relation"] = np.full(shape, eos_relation, dtype=object)
+    out["baryonic_relation"] = np.full(shape, baryonic_relation, dtype=object)
+
+    ns2_ok = ns2.source != _eos.SOURCE_NONE
+    have_tidal = np.where(is_bns, (ns1.source != _eos.SOURCE_NONE) & ns2_ok, ns2_ok)
+    out["remnant_status"][finite & ~have_tidal] = STATUS_NO_TIDAL
+
+    sel = is_nsbh & finite & have_tidal
+    if sel.any():
+        _nsbh_rows(out, sel, m1, m2, c1, c2, t1, t2, phi12, ns2, bbh_remnant)
+    sel = is_bns & finite & have_tidal
+    if sel.any():
+        r16 = ns_radius_km if r16_km is None else r16_km
+        _bns_rows(out, sel, m1, m2, ns1, ns2, mtov_msun, r16)
+
+    out["deficit_msun"] = out["erad_msun"] + out["ejected_msun"]
+    out["remnant_status"] = out["remnant_status"].astype(str)
+    for key in (
+        "erad_method",
+        "tidal_source1",
+        "tidal_source2",
+        "eos_relation",
+        "baryonic_relation",
+    ):
+        out[key] = out[key].astype(str)
+    return out
+
+
+def _nsbh_rows(
+    out: dict[str, NDArray[Any]],
+    sel: NDArray[np.bool_],
+    m1: FloatArray,
+    m2: FloatArray,
+    c1: FloatArray,
+    c2: FloatArray,
+    t1: FloatArray,
+    t2: FloatArray,
+    phi12: FloatArray,
+    ns2: _eos.NeutronStars,
+    bbh_remnant: BbhRemnant | None,
+) -> None:
+    """Fill the NSBH rows ``sel`` of ``out`` in place."""
+    q = m1[sel] / m2[sel]
+    chi_al = c1[sel] * np.cos(t1[sel])  # aligned projection (common practice, no source)
+    comp = ns2.compactness[sel]
+    mb_ns = ns2.mb_msun[sel]
+    frac = _nsbh.remnant_mass_fraction_fhn2018(q, _kerr_isco_radius(chi_al), comp)
+    mrem_b = frac * mb_ns
+    disrupted = mrem_b > 0
+    in_range = _nsbh.fhn2018_in_range(q, chi_al, comp) & ns2.in_range[sel]
+
+    out["remnant_baryonic_frac"][sel] = frac
+    out["ejected_msun"][sel] = mrem_b
+    out["ejected_grav_msun"][sel] = mrem_b * m2[sel] / mb_ns
+    out["disrupted"][sel] = disrupted
+    out["remnant_kind"][sel] = "BH"
+
+    idx = np.flatnonzero(sel)
+    dis_idx, clean_idx = idx[disrupted], idx[~disrupted]
+    out["remnant_status"][dis_idx] = STATUS_DISRUPTED
+    out["in_fit_range"][dis_idx] = in_range[disrupted]
+    if clean_idx.size == 0:
+        return
+    if bbh_remnant is None:
+        out["remnant_status"][clean_idx] = STATUS_NO_BBH
+        out["in_fit_range"][clean_idx] = in_range[~disrupted]
+        return
+    i = clean_idx
+    res = bbh_remnant(m1[i], m2[i], c1[i], c2[i], t1[i], t2[i], phi12[i])
+    for key in ("mf_msun", "chif", "erad_msun"):
+        out[key][clean_idx] = np.asarray(res[key], dtype=np.float64)
+    if "vkick_kms" in res:
+        out["vkick_kms"][clean_idx] = np.asarray(res["vkick_kms"], dtype=np.float64)
+    bbh_ok = np.asarray(res.get("in_fit_range", True), dtype=bool)
+    out["in_fit_range"][clean_idx] = in_range[~disrupted] & bbh_ok
+    out["remnant_status"][clean_idx] = STATUS_ESTIMATED
+    out["erad_method"][clean_idx] = ERAD_BBH
+
+
+def _bns_rows(
+    out: dict[str, NDArray[Any]],
+    sel: NDArray[np.bool_],
+    m1: FloatArray,
+    m2: FloatArray,
+    ns1: _eos.NeutronStars,
+    ns2: _eos.NeutronStars,
+    mtov_msun: float | ArrayLike | None,
+    r16_km: float | ArrayLike | None,
+) -> None:
+    """Fill the BNS rows ``sel`` of ``out`` in place."""
+    a1, a2 = m1[sel], m2[sel]
+    la1, la2 = ns1.lam[sel], ns2.lam[sel]
+    k1, k2 = ns1.compactness[sel], ns2.compactness[sel]
+    b1, b2 = ns1.mb_msun[sel], ns2.mb_msun[sel]
+
+    erad = _bns.inspiral_erad_to_contact(a1, a2, la1, la2, k1, k2)
+    dyn = _bns.dynamical_ejecta_du2017(a1, a2, k1, k2, b1, b2)
+    disk = _bns.disk_mass_radice2018(a1, a2, la1, la2)
+    ejected = dyn + disk
+    ejected_grav = ejected * (a1 + a2) / (b1 + b2)
+    mf = a1 + a2 - erad - ejected_grav
+
+    out["erad_msun"][sel] = erad
+    out["erad_method"][sel] = ERAD_PN_CONTACT
+    out["erad_lower_bound"][sel] = True
+    out["ejecta_dyn_msun"][sel] = dyn
+    out["disk_msun"][sel] = disk
+    out["ejected_msun"][sel] = ejected
+    out["ejected_grav_msun"][sel] = ejected_grav
+    out["mf_msun"][sel] = mf
+    out["mb_remnant_msun"][sel] = b1 + b2 - ejected
+    out["in_fit_range"][sel] = (
+        _bns.du2017_in_range(a1, a2, k1, k2)
+        & _bns.radice2018_in_range(a1, a2, la1, la2)
+        & ns1.in_range[sel]
+        & ns2.in_range[sel]
+    )
+    out["remnant_status"][sel] = STATUS_ESTIMATED
+    if mtov_msun is not None and r16_km is not None:
+        shape = m1.shape
+        mtov = np.broadcast_to(np.asarray(mtov_msun, dtype=np.float64), shape)[sel]
+        r16 = np.broadcast_to(np.asarray(r16_km, dtype=np.float64), shape)[sel]
+        if np.any(~(np.isfinite(mtov) & (mtov > 0))) or np.any(~(np.isfinite(r16) & (r16 > 0))):
+            raise OptionError("M_TOV and R_1.6 must be positive numbers (Msun, km)")
+        out["mthresh_msun"][sel] = _bns.prompt_collapse_threshold_bauswein2013(mtov, r16)
+        out["remnant_kind"][sel] = _bns.bns_remnant_kind(a1 + a2, mf, mtov, r16)
