@@ -114,7 +114,7 @@ def isco_gw_frequency(mass_msun: ArrayLike) -> NDArray[np.float64]:
 def inspiral_dedf(f_hz: ArrayLike, mchirp_msun: ArrayLike) -> NDArray[np.float64]:
     """Source-frame inspiral energy spectrum dE/df in Msun c^2 per Hz.
 
-    ``dE/df = (pi^(2/3) / 3) (G Mc)^(5/3) f^(-1/3)`` (in units of c^2: ``(pi^(2/3)/3)
+    ``dE/df = (pi^(2/3) / 3) G^(2/3) Mc^(5/3) f^(-1/3)`` (in units of c^2: ``(pi^(2/3)/3)
     T_sun^(2/3) (Mc/Msun)^(5/3) f^(-1/3)`` Msun c^2 / Hz), the leading-order quadrupole
     spectrum of a circular binary (Peters & Mathews 1963, Phys. Rev. 131, 435; in this form in
     Phinney 2001, arXiv:astro-ph/0108028). Newtonian order: valid well below the last stable
