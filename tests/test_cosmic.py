@@ -1,0 +1,310 @@
+"""The cosmic-budget API: grids and integrals, draws and tables, the remnants-table wiring.
+
+Physics checks against outside references live in tests/reference/test_ref_cosmic.py; here the
+bookkeeping is checked with identities that must hold exactly (before + since = total, sums over
+kinds, linearity in weights) and the contract of :func:`gwdeficit.cosmic.cosmic_budget`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+import pytest
+from astropy.cosmology import WMAP9, Planck18
+
+from gwdeficit import cosmic
+from gwdeficit.rates import RateEvolution
+from gwdeficit.schema import (
+    META_COSMOLOGY,
+    META_PROVENANCE,
+    META_RATE_MODEL,
+    META_SUMMARY,
+    META_UNITS,
+    OptionError,
+    SchemaError,
+)
+
+# --- stand-ins for rates.RateModel and resample.bootstrap_means (same documented signatures) --
+_NO_EVOLUTION = RateEvolution("none")
+
+
+@dataclass(frozen=True)
+class _Rate:
+    value: float
+    spread: float = 0.3
+    evolution: RateEvolution = _NO_EVOLUTION
+
+    @property
+    def median(self) -> float:
+        return self.value
+
+    def draw(self, n, rng):
+        return self.value * np.exp(self.spread * rng.standard_normal(n))
+
+    def describe(self):
+        return {"median": self.value, **self.evolution.describe()}
+
+
+def _boot(remnants, columns, n_draws, rng, sources=(), selection="none"):
+    # Event bootstrap of the per-event weighted means; "catalogue" off: every event once.
+    w = cosmic.merger_weights(remnants)
+    codes, uniq = pd.factorize(remnants["event"])
+    if "catalogue" in sources:
+        pick = rng.integers(0, len(uniq), size=(n_draws, len(uniq)))
+    else:
+        pick = np.broadcast_to(np.arange(len(uniq)), (n_draws, len(uniq)))
+    out = {}
+    for c in columns:
+        per_event = np.bincount(codes, weights=w * remnants[c].to_numpy(np.float64))
+        out[c] = per_event[pick].mean(axis=1)
+    return out
+
+
+def _remnants(n_events=20, n_samples=10, kind="BBH", seed=0, prefix="e"):
+    rng = np.random.default_rng(seed)
+    n = n_events * n_samples
+    if kind == "BNS":
+        m1 = rng.uniform(1.2, 1.6, n)
+        m2 = m1 * rng.uniform(0.8, 1.0, n)
+        ejected = rng.uniform(0.005, 0.05, n)
+    else:
+        m1 = rng.uniform(10.0, 40.0, n)
+        m2 = m1 * rng.uniform(0.4, 1.0, n)
+        ejected = np.zeros(n)
+    erad = 0.045 * (m1 + m2)
+    df = pd.DataFrame(
+        {
+            "event": np.repeat([f"{prefix}{i:03d}" for i in range(n_events)], n_samples),
+            "sample": np.tile(np.arange(n_samples), n_events),
+            "weight": rng.uniform(0.5, 1.5, n),
+            "kind": kind,
+            "m1_msun": m1,
+            "m2_msun": m2,
+            "mf_msun": m1 + m2 - erad - ejected,
+            "erad_msun": erad,
+            "ejected_msun": ejected,
+            "deficit_msun": erad + ejected,
+            "remnant_status": "estimated",
+        }
+    )
+    df.attrs[META_PROVENANCE] = [{"stage": "remnant"}]
+    return df
+
+
+def _budget(df, rate, **kw):
+    kw.setdefault("n_draws", 300)
+    kw.setdefault("bootstrap", _boot)
+    return cosmic.cosmic_budget(df, rate, **kw)
+
+
+def _get(table, quantity, section="total", kind=None):
+    rows = table[(table["section"] == section) & (table["quantity"] == quantity)]
+    if kind is not None:
+        rows = rows[rows["kind"] == kind]
+    return rows
+
+
+# --- grids and integrals -----------------------------------------------------------------------
+def test_redshift_grid_rejects_bad_values():
+    for bad in (0.0, -1.0, np.inf, np.nan):
+        with pytest.raises(OptionError):
+            cosmic.redshift_grid(bad)
+    with pytest.raises(OptionError):
+        cosmic.redshift_grid(1.0, n=2)
+    z = cosmic.redshift_grid(3.0, 101)
+    assert z[0] == 0.0 and z[-1] == pytest.approx(3.0) and np.all(np.diff(z) > 0)
+
+
+def test_cumulative_integral_of_powers_matches_calculus():
+    # integral_0^z (1+z')^k dz' = ((1+z)^(k+1) - 1) / (k+1): calculus, no source needed.
+    z = cosmic.redshift_grid(9.0, 801)
+    for k in (-2.5, -1.0 / 3.0, 0.0, 1.7):
+        got = cosmic.cumulative_in_redshift(z, (1 + z) ** k)
+        np.testing.assert_allclose(got[1:], ((1 + z[1:]) ** (k + 1) - 1) / (k + 1), rtol=1e-7)
+
+
+def test_frequency_grid_limits_and_errors():
+    f = cosmic.frequency_grid(1e-3, 1e3, per_decade=10)
+    assert f[0] == pytest.approx(1e-3) and f[-1] == pytest.approx(1e3) and f.size == 61
+    with pytest.raises(OptionError):
+        cosmic.frequency_grid(10.0, 1.0)
+
+
+def test_spectrum_is_linear_in_weighted_rows():
+    kernels = cosmic.redshift_kernels(RateEvolution("powerlaw", kappa=2.0), Planck18, 5.0)
+    rho_c = cosmic.critical_density(Planck18)
+    f = np.geomspace(1e-3, 400.0, 30)
+    mc, fc = np.array([5.0, 25.0]), np.array([400.0, 90.0])
+    one = [
+        cosmic.omega_gw_inspiral(f, mc[i : i + 1], fc[i : i + 1], [1.0], kernels, rho_c)
+        for i in range(2)
+    ]
+    both = cosmic.omega_gw_inspiral(f, mc, fc, [1.0, 3.0], kernels, rho_c, chunk=7)
+    np.testing.assert_allclose(both, 0.25 * one[0] + 0.75 * one[1], rtol=1e-12)
+    for bad in ([1.0, -1.0], [0.0, 0.0]):
+        with pytest.raises(OptionError):
+            cosmic.omega_gw_inspiral(f, mc, fc, bad, kernels, rho_c)
+
+
+# --- draws and the tidy table --------------------------------------------------------------------
+def _blocks(rate=20.0, n=50, zmax=6.0):
+    kernels = cosmic.redshift_kernels(RateEvolution("madau-dickinson", z_ref=0.2), Planck18, zmax)
+    rng = np.random.default_rng(5)
+    rates = rate * rng.lognormal(0, 0.4, n)
+    means = {"erad_msun": rng.uniform(2, 3, n), "ejected_msun": rng.uniform(0, 0.01, n)}
+    means["deficit_msun"] = means["erad_msun"] + means["ejected_msun"]
+    return kernels, rates, means, cosmic.budget_draws(kernels, rates, means, 1.27e11)
+
+
+def test_before_plus_since_is_total_and_rate_is_pinned_at_z_ref():
+    _, rates, means, blocks = _blocks()
+    by = {b.key: b for b in blocks}
+    for q in ("erad", "ejected", "deficit"):
+        total = by[("total", f"{q}_density")].values
+        both = (
+            by[("history", f"{q}_density_before")].values
+            + by[("history", f"{q}_density_since")].values
+        )
+        np.testing.assert_allclose(both, np.broadcast_to(total, both.shape), rtol=1e-12)
+    merger = by[("history", "merger_rate")]
+    at_ref = np.interp(0.2, merger.z, merger.values[0])
+    assert at_ref == pytest.approx(rates[0], rel=1e-4)
+    # Draw d pairs rate d with mean d: omega_gw is their product times one kernel number.
+    om = by[("total", "omega_gw")].values[:, 0]
+    np.testing.assert_allclose(
+        om / (rates * means["erad_msun"]), om[0] / (rates[0] * means["erad_msun"][0])
+    )
+
+
+def test_budget_draws_rejects_unpaired_draws():
+    kernels, rates, means, _ = _blocks()
+    with pytest.raises(OptionError):
+        cosmic.budget_draws(kernels, rates[:-1], means, 1.0)
+
+
+def test_table_columns_quantiles_and_sum_over_kinds():
+    _, _, _, a = _blocks(rate=20.0)
+    _, _, _, b = _blocks(rate=200.0)
+    summed = cosmic.sum_draws([a, b])
+    table = cosmic.budget_table({"BBH": a, "BNS": b, "all": summed})
+    assert tuple(table.columns) == cosmic.TABLE_COLUMNS
+    assert set(table["section"]) == {"total", "history"}
+    ordered = table[["lo90", "lo68", "median", "hi68", "hi90"]].to_numpy()
+    assert np.all(np.diff(ordered, axis=1) >= 0)
+    tot = {k: _get(table, "erad_density", kind=k)["median"].item() for k in ("BBH", "BNS", "all")}
+    # Same seed in _blocks: the two kinds' draws are proportional, so medians add up exactly.
+    assert tot["all"] == pytest.approx(tot["BBH"] + tot["BNS"], rel=1e-12)
+    hist = _get(table, "erad_density_since", "history", "BBH")
+    assert hist["z"].notna().all() and hist["f_hz"].isna().all()
+    assert hist["lookback_gyr"].is_monotonic_increasing
+
+
+# --- the API on a remnants table ----------------------------------------------------------------
+def test_cosmic_budget_outputs_and_metadata():
+    df = _remnants()
+    res = _budget(df, _Rate(25.0, evolution=RateEvolution("madau-dickinson", z_ref=0.2)), seed=3)
+    t = res.table
+    assert set(t["kind"]) == {"BBH"}
+    assert set(t["section"]) == {"total", "history", "spectrum"}
+    spec = _get(t, "omega_gw_inspiral", "spectrum")
+    assert spec["f_hz"].is_monotonic_increasing and spec["z"].isna().all()
+    assert (spec["median"] > 0).any()
+    # The spectrum integrates to the inspiral total (Phinney 2001; see the reference test).
+    assert abs(res.summary["totals"]["BBH"]["spectrum_integral_rel_diff"]) < 1e-3
+    # Inspiral energy to the ISCO is part of, and smaller than, the NR-fit radiated energy.
+    om = _get(t, "omega_gw")["median"].item()
+    assert 0 < _get(t, "omega_gw_inspiral")["median"].item() < om
+    erg = _get(t, "gw_energy_density")["median"].item()
+    msun = _get(t, "gw_energy_density_msun")["median"].item()
+    assert erg == pytest.approx(float(cosmic.energy_density_erg_cm3(msun)), rel=1e-12)
+    assert om == pytest.approx(msun / cosmic.critical_density(Planck18), rel=1e-12)
+    meta = res.meta
+    assert meta[META_UNITS]["lookback_gyr"] == "Gyr" and meta[META_UNITS]["f_hz"] == "Hz"
+    assert meta[META_UNITS]["erad_density"] == "solMass / Mpc3"
+    assert meta[META_RATE_MODEL]["median"] == 25.0
+    assert meta[META_COSMOLOGY]["name"] == "Planck18"
+    assert [r["stage"] for r in meta[META_PROVENANCE]] == ["remnant", "cosmic"]
+    assert meta[META_PROVENANCE][-1]["params"]["seed"] == 3
+    assert meta[META_SUMMARY]["draws"] == 300
+    assert any("Madau" in w for w in res.warnings)  # zmax = 10 > 8
+    assert any("inspiral only" in w for w in res.warnings)
+
+
+def test_seed_determinism():
+    df = _remnants()
+    a = _budget(df, _Rate(25.0), seed=7).table
+    b = _budget(df, _Rate(25.0), seed=7).table
+    c = _budget(df, _Rate(25.0), seed=8).table
+    pd.testing.assert_frame_equal(a, b)
+    assert not np.allclose(a["hi90"], c["hi90"], equal_nan=True)
+
+
+def test_rate_source_off_holds_the_median_rate():
+    df = _remnants()
+    res = _budget(df, _Rate(25.0), sources=("posterior",), spectrum=False)
+    rows = _get(res.table, "merger_density")
+    assert rows["lo90"].item() == pytest.approx(rows["hi90"].item(), rel=1e-12)
+    assert not (res.table["section"] == "spectrum").any()
+
+
+def test_rows_without_remnant_estimate_are_left_out_counted_and_said():
+    df = _remnants()
+    bad = df.index[:15]
+    df.loc[bad, ["erad_msun", "ejected_msun", "deficit_msun", "mf_msun"]] = np.nan
+    df.loc[bad, "remnant_status"] = "not_estimated:outside_fit_range"
+    res = _budget(df, _Rate(25.0, spread=0.0), sources=())
+    c = res.summary["counts"]["BBH"]
+    assert c["rows"] == 200 and c["rows_not_estimated"] == 15 and c["rows_used"] == 185
+    assert c["rows_used"] + c["rows_not_estimated"] == c["rows"]
+    assert any("15 of 200" in w for w in res.warnings)
+    assert np.isfinite(res.table[["median", "lo90", "hi90"]].to_numpy()).all()
+
+
+def test_per_kind_rates_give_kinds_and_their_sum():
+    df = pd.concat([_remnants(kind="BBH"), _remnants(kind="BNS", prefix="n", seed=1)])
+    df = pd.concat([df, _remnants(n_events=2, kind="NSBH", prefix="x", seed=2)])
+    rates = {
+        "BBH": _Rate(25.0),
+        "BNS": _Rate(300.0, evolution=RateEvolution("powerlaw", 1.5)),
+        "XYZ": _Rate(1.0),
+    }
+    res = _budget(df, rates, seed=1)
+    assert set(res.table["kind"]) == {"BBH", "BNS", "all"}
+    assert any("no rate given for NSBH" in w for w in res.warnings)
+    assert any("XYZ" in w for w in res.warnings)
+    ej = {k: _get(res.table, "ejected_density", kind=k)["median"].item() for k in ("BBH", "BNS")}
+    assert ej["BBH"] == 0.0 and ej["BNS"] > 0.0
+    assert any("neutron-star" in w for w in res.warnings)
+    assert set(res.meta[META_RATE_MODEL]) == {"BBH", "BNS", "XYZ"}
+
+
+def test_cosmology_comes_from_the_table_metadata():
+    df = _remnants()
+    df.attrs[META_COSMOLOGY] = {"name": "WMAP9", "H0": 69.3, "Om0": 0.286}
+    res = _budget(df, _Rate(25.0), spectrum=False)
+    assert res.summary["cosmology"]["name"] == "WMAP9"
+    assert res.summary["critical_density_msun_mpc3"] == pytest.approx(
+        cosmic.critical_density(WMAP9)
+    )
+
+
+def test_resolve_cosmology_forms_and_errors():
+    assert cosmic.resolve_cosmology(None) is Planck18
+    assert cosmic.resolve_cosmology("WMAP9") is WMAP9
+    custom = cosmic.resolve_cosmology({"name": "mine", "H0": 70.0, "Om0": 0.3})
+    assert custom.H0.value == 70.0 and custom.Om0 == 0.3
+    with pytest.raises(OptionError, match="not known"):
+        cosmic.resolve_cosmology("Planck99")
+
+
+def test_bad_inputs_raise_typed_errors():
+    df = _remnants()
+    with pytest.raises(SchemaError, match=r"mine\.parquet.*mf_msun"):
+        _budget(df.drop(columns=["mf_msun"]), _Rate(1.0), source_name="mine.parquet")
+    for kw in ({"zmax": -1.0}, {"zmax": np.nan}, {"n_draws": 0}, {"f_min_hz": -1.0}):
+        with pytest.raises(OptionError):
+            _budget(df, _Rate(1.0), **kw)
+    with pytest.raises(OptionError, match="no population"):
+        _budget(df, {"BNS": _Rate(1.0)})
