@@ -83,11 +83,16 @@ def _kerr_isco_radius(chi: FloatArray) -> FloatArray:
 
 
 def _as_float(a: ArrayLike, shape: tuple[int, ...], name: str) -> FloatArray:
+    """Broadcast to ``shape`` and flatten to a writable 1-D float64 copy."""
     try:
         out = np.broadcast_to(np.asarray(a, dtype=np.float64), shape)
     except ValueError as exc:
         raise OptionError(f"{name}: shape {np.shape(a)} does not match {shape}") from exc
-    return np.array(out, dtype=np.float64)  # writable copy
+    return np.array(out, dtype=np.float64).reshape(-1)
+
+
+def _flat_option(a: ArrayLike | None, shape: tuple[int, ...], name: str) -> FloatArray | None:
+    return None if a is None else _as_float(a, shape, name)
 
 
 def ns_remnant(
@@ -134,19 +139,21 @@ def ns_remnant(
     for what is not estimated.
     """
     kind_arr = np.asarray(kind).astype(str)
-    shape = np.broadcast_shapes(
-        *(np.shape(a) for a in (m1_msun, m2_msun, chi1, chi2, tilt1_rad, tilt2_rad)),
-        np.shape(lambda1),
-        np.shape(lambda2),
-        kind_arr.shape,
-    )
+    inputs = (m1_msun, m2_msun, chi1, chi2, tilt1_rad, tilt2_rad, lambda1, lambda2)
+    try:
+        shape = np.broadcast_shapes(*(np.shape(a) for a in inputs), kind_arr.shape)
+    except ValueError as exc:
+        raise OptionError(f"ns_remnant: input arrays do not broadcast together: {exc}") from exc
     m1 = _as_float(m1_msun, shape, "m1_msun")
     m2 = _as_float(m2_msun, shape, "m2_msun")
     c1, c2 = _as_float(chi1, shape, "chi1"), _as_float(chi2, shape, "chi2")
     t1, t2 = _as_float(tilt1_rad, shape, "tilt1_rad"), _as_float(tilt2_rad, shape, "tilt2_rad")
     l1, l2 = _as_float(lambda1, shape, "lambda1"), _as_float(lambda2, shape, "lambda2")
     phi12 = _as_float(np.nan if phi12_rad is None else phi12_rad, shape, "phi12_rad")
-    kind_arr = np.broadcast_to(kind_arr, shape)
+    kind_arr = np.broadcast_to(kind_arr, shape).reshape(-1)
+    ns_radius_km = _flat_option(ns_radius_km, shape, "ns_radius_km")
+    mtov_msun = _flat_option(mtov_msun, shape, "mtov_msun")
+    r16_km = _flat_option(r16_km, shape, "r16_km")
     bad_kind = ~np.isin(kind_arr, NS_KINDS)
     if bad_kind.any():
         found = sorted(set(kind_arr[bad_kind].tolist()))
@@ -165,7 +172,8 @@ def ns_remnant(
     finite = np.isfinite(m1) & np.isfinite(m2) & np.isfinite(c1) & np.isfinite(t1)
     finite &= np.where(is_bns, np.isfinite(c2) & np.isfinite(t2), True)
 
-    nan = np.full(shape, np.nan)
+    flat = m1.shape
+    nan = np.full(flat, np.nan)
     out: dict[str, NDArray[Any]] = {
         "mf_msun": nan.copy(),
         "chif": nan.copy(),
@@ -173,12 +181,12 @@ def ns_remnant(
         "ejected_msun": nan.copy(),
         "ejected_grav_msun": nan.copy(),
         "vkick_kms": nan.copy(),
-        "in_fit_range": np.zeros(shape, dtype=bool),
-        "disrupted": np.zeros(shape, dtype=bool),
-        "remnant_kind": np.full(shape, "", dtype="<U4"),
-        "remnant_status": np.full(shape, STATUS_BAD_INPUT, dtype=object),
-        "erad_method": np.full(shape, ERAD_NONE, dtype=object),
-        "erad_lower_bound": np.zeros(shape, dtype=bool),
+        "in_fit_range": np.zeros(flat, dtype=bool),
+        "disrupted": np.zeros(flat, dtype=bool),
+        "remnant_kind": np.full(flat, "", dtype="<U4"),
+        "remnant_status": np.full(flat, STATUS_BAD_INPUT, dtype=object),
+        "erad_method": np.full(flat, ERAD_NONE, dtype=object),
+        "erad_lower_bound": np.zeros(flat, dtype=bool),
         "remnant_baryonic_frac": nan.copy(),
         "ejecta_dyn_msun": nan.copy(),
         "disk_msun": nan.copy(),
@@ -211,8 +219,8 @@ def ns_remnant(
     out["compactness2"] = ns2.compactness.copy()
     out["tidal_source1"] = np.where(bh1, "bh", ns1.source).astype(object)
     out["tidal_source2"] = ns2.source.astype(object)
-    out["eos_relation"] = np.full(shape, eos_relation, dtype=object)
-    out["baryonic_relation"] = np.full(shape, baryonic_relation, dtype=object)
+    out["eos_relation"] = np.full(flat, eos_relation, dtype=object)
+    out["baryonic_relation"] = np.full(flat, baryonic_relation, dtype=object)
 
     ns2_ok = ns2.source != _eos.SOURCE_NONE
     have_tidal = np.where(is_bns, (ns1.source != _eos.SOURCE_NONE) & ns2_ok, ns2_ok)
@@ -236,7 +244,7 @@ def ns_remnant(
         "baryonic_relation",
     ):
         out[key] = out[key].astype(str)
-    return out
+    return {key: value.reshape(shape) for key, value in out.items()}
 
 
 def _nsbh_rows(
@@ -297,8 +305,8 @@ def _bns_rows(
     m2: FloatArray,
     ns1: _eos.NeutronStars,
     ns2: _eos.NeutronStars,
-    mtov_msun: float | ArrayLike | None,
-    r16_km: float | ArrayLike | None,
+    mtov_msun: FloatArray | None,
+    r16_km: FloatArray | None,
 ) -> None:
     """Fill the BNS rows ``sel`` of ``out`` in place."""
     a1, a2 = m1[sel], m2[sel]
@@ -330,9 +338,7 @@ def _bns_rows(
     )
     out["remnant_status"][sel] = STATUS_ESTIMATED
     if mtov_msun is not None and r16_km is not None:
-        shape = m1.shape
-        mtov = np.broadcast_to(np.asarray(mtov_msun, dtype=np.float64), shape)[sel]
-        r16 = np.broadcast_to(np.asarray(r16_km, dtype=np.float64), shape)[sel]
+        mtov, r16 = np.asarray(mtov_msun)[sel], np.asarray(r16_km)[sel]
         if np.any(~(np.isfinite(mtov) & (mtov > 0))) or np.any(~(np.isfinite(r16) & (r16 > 0))):
             raise OptionError("M_TOV and R_1.6 must be positive numbers (Msun, km)")
         out["mthresh_msun"][sel] = _bns.prompt_collapse_threshold_bauswein2013(mtov, r16)

@@ -16,8 +16,14 @@ FloatArray = NDArray[np.float64]
 FHN2018 = {"alpha": 0.406, "beta": 0.139, "gamma": 0.255, "delta": 1.761}
 #: Calibration of FHN 2018 (from memory): 75 NR simulations with BH/NS mass ratio 1 - 7,
 #: aligned BH spin -0.5 to 0.97, NS compactness 0.13 - 0.182.
-FHN2018_RANGE = {"q_min": 1.0, "q_max": 7.0, "chi_min": -0.5, "chi_max": 0.97,
-                 "c_min": 0.13, "c_max": 0.182}  # fmt: skip
+FHN2018_RANGE = {
+    "q_min": 1.0,
+    "q_max": 7.0,
+    "chi_min": -0.5,
+    "chi_max": 0.97,
+    "c_min": 0.13,
+    "c_max": 0.182,
+}
 
 
 def remnant_mass_fraction_fhn2018(q: ArrayLike, r_isco: ArrayLike, c_ns: ArrayLike) -> FloatArray:
