@@ -115,6 +115,7 @@ META_CONVERSIONS = "gwdeficit.conversions"  # [text, ...]
 META_VERSION = "gwdeficit.version"
 META_DISCLAIMER = "gwdeficit.disclaimer"
 META_FITS = "gwdeficit.fits"
+META_REMNANT_DRAWS = "gwdeficit.remnant_draws"  # angles the remnant stage drew, with the seed
 META_RATE_MODEL = "gwdeficit.rate_model"
 META_SUMMARY = "gwdeficit.summary"
 
