@@ -7,15 +7,13 @@ kinds, linearity in weights) and the contract of :func:`gwdeficit.cosmic.cosmic_
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 import pandas as pd
 import pytest
 from astropy.cosmology import WMAP9, Planck18
 
 from gwdeficit import cosmic
-from gwdeficit.rates import RateEvolution
+from gwdeficit.rates import RateEvolution, parse_rate
 from gwdeficit.schema import (
     META_COSMOLOGY,
     META_PROVENANCE,
@@ -26,40 +24,9 @@ from gwdeficit.schema import (
     SchemaError,
 )
 
-# --- stand-ins for rates.RateModel and resample.bootstrap_means (same documented signatures) --
-_NO_EVOLUTION = RateEvolution("none")
 
-
-@dataclass(frozen=True)
-class _Rate:
-    value: float
-    spread: float = 0.3
-    evolution: RateEvolution = _NO_EVOLUTION
-
-    @property
-    def median(self) -> float:
-        return self.value
-
-    def draw(self, n, rng):
-        return self.value * np.exp(self.spread * rng.standard_normal(n))
-
-    def describe(self):
-        return {"median": self.value, **self.evolution.describe()}
-
-
-def _boot(remnants, columns, n_draws, rng, sources=(), selection="none"):
-    # Event bootstrap of the per-event weighted means; "catalogue" off: every event once.
-    w = cosmic.merger_weights(remnants)
-    codes, uniq = pd.factorize(remnants["event"])
-    if "catalogue" in sources:
-        pick = rng.integers(0, len(uniq), size=(n_draws, len(uniq)))
-    else:
-        pick = np.broadcast_to(np.arange(len(uniq)), (n_draws, len(uniq)))
-    out = {}
-    for c in columns:
-        per_event = np.bincount(codes, weights=w * remnants[c].to_numpy(np.float64))
-        out[c] = per_event[pick].mean(axis=1)
-    return out
+def _rate(text, evolution=None):
+    return parse_rate(text, evolution=evolution or RateEvolution("none"))
 
 
 def _remnants(n_events=20, n_samples=10, kind="BBH", seed=0, prefix="e"):
@@ -95,7 +62,6 @@ def _remnants(n_events=20, n_samples=10, kind="BBH", seed=0, prefix="e"):
 
 def _budget(df, rate, **kw):
     kw.setdefault("n_draws", 300)
-    kw.setdefault("bootstrap", _boot)
     return cosmic.cosmic_budget(df, rate, **kw)
 
 
@@ -204,7 +170,7 @@ def test_table_columns_quantiles_and_sum_over_kinds():
 # --- the API on a remnants table ----------------------------------------------------------------
 def test_cosmic_budget_outputs_and_metadata():
     df = _remnants()
-    res = _budget(df, _Rate(25.0, evolution=RateEvolution("madau-dickinson", z_ref=0.2)), seed=3)
+    res = _budget(df, _rate("25 +10 -8", RateEvolution("madau-dickinson", z_ref=0.2)), seed=3)
     t = res.table
     assert set(t["kind"]) == {"BBH"}
     assert set(t["section"]) == {"total", "history", "spectrum"}
@@ -234,16 +200,16 @@ def test_cosmic_budget_outputs_and_metadata():
 
 def test_seed_determinism():
     df = _remnants()
-    a = _budget(df, _Rate(25.0), seed=7).table
-    b = _budget(df, _Rate(25.0), seed=7).table
-    c = _budget(df, _Rate(25.0), seed=8).table
+    a = _budget(df, _rate("25 +10 -8"), seed=7).table
+    b = _budget(df, _rate("25 +10 -8"), seed=7).table
+    c = _budget(df, _rate("25 +10 -8"), seed=8).table
     pd.testing.assert_frame_equal(a, b)
     assert not np.allclose(a["hi90"], c["hi90"], equal_nan=True)
 
 
 def test_rate_source_off_holds_the_median_rate():
     df = _remnants()
-    res = _budget(df, _Rate(25.0), sources=("posterior",), spectrum=False)
+    res = _budget(df, _rate("25 +10 -8"), sources=("posterior",), spectrum=False)
     rows = _get(res.table, "merger_density")
     assert rows["lo90"].item() == pytest.approx(rows["hi90"].item(), rel=1e-12)
     assert not (res.table["section"] == "spectrum").any()
@@ -254,10 +220,11 @@ def test_rows_without_remnant_estimate_are_left_out_counted_and_said():
     bad = df.index[:15]
     df.loc[bad, ["erad_msun", "ejected_msun", "deficit_msun", "mf_msun"]] = np.nan
     df.loc[bad, "remnant_status"] = "not_estimated:outside_fit_range"
-    res = _budget(df, _Rate(25.0, spread=0.0), sources=())
+    res = _budget(df, _rate("25"), sources=())
     c = res.summary["counts"]["BBH"]
-    assert c["rows"] == 200 and c["rows_not_estimated"] == 15 and c["rows_used"] == 185
-    assert c["rows_used"] + c["rows_not_estimated"] == c["rows"]
+    assert c["rows_in"] == 200 and c["rows_not_estimated"] == 15 and c["rows_used"] == 185
+    assert c["rows_used"] + c["rows_not_estimated"] + c["rows_zero_weight_events"] == c["rows_in"]
+    assert c["not_estimated_reasons"] == {"not_estimated:outside_fit_range": 15}
     assert any("15 of 200" in w for w in res.warnings)
     assert np.isfinite(res.table[["median", "lo90", "hi90"]].to_numpy()).all()
 
@@ -266,9 +233,9 @@ def test_per_kind_rates_give_kinds_and_their_sum():
     df = pd.concat([_remnants(kind="BBH"), _remnants(kind="BNS", prefix="n", seed=1)])
     df = pd.concat([df, _remnants(n_events=2, kind="NSBH", prefix="x", seed=2)])
     rates = {
-        "BBH": _Rate(25.0),
-        "BNS": _Rate(300.0, evolution=RateEvolution("powerlaw", 1.5)),
-        "XYZ": _Rate(1.0),
+        "BBH": _rate("25 +10 -8"),
+        "BNS": _rate("300 +200 -150", RateEvolution("powerlaw", 1.5)),
+        "XYZ": _rate("1"),
     }
     res = _budget(df, rates, seed=1)
     assert set(res.table["kind"]) == {"BBH", "BNS", "all"}
@@ -283,7 +250,7 @@ def test_per_kind_rates_give_kinds_and_their_sum():
 def test_cosmology_comes_from_the_table_metadata():
     df = _remnants()
     df.attrs[META_COSMOLOGY] = {"name": "WMAP9", "H0": 69.3, "Om0": 0.286}
-    res = _budget(df, _Rate(25.0), spectrum=False)
+    res = _budget(df, _rate("25 +10 -8"), spectrum=False)
     assert res.summary["cosmology"]["name"] == "WMAP9"
     assert res.summary["critical_density_msun_mpc3"] == pytest.approx(
         cosmic.critical_density(WMAP9)
@@ -302,9 +269,9 @@ def test_resolve_cosmology_forms_and_errors():
 def test_bad_inputs_raise_typed_errors():
     df = _remnants()
     with pytest.raises(SchemaError, match=r"mine\.parquet.*mf_msun"):
-        _budget(df.drop(columns=["mf_msun"]), _Rate(1.0), source_name="mine.parquet")
+        _budget(df.drop(columns=["mf_msun"]), _rate("1"), source_name="mine.parquet")
     for kw in ({"zmax": -1.0}, {"zmax": np.nan}, {"n_draws": 0}, {"f_min_hz": -1.0}):
         with pytest.raises(OptionError):
-            _budget(df, _Rate(1.0), **kw)
+            _budget(df, _rate("1"), **kw)
     with pytest.raises(OptionError, match="no population"):
-        _budget(df, {"BNS": _Rate(1.0)})
+        _budget(df, {"BNS": _rate("1")})

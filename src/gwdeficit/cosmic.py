@@ -24,7 +24,7 @@ together.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Collection, Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Protocol
 
@@ -57,6 +57,10 @@ ZGRID_STRIDE = 20
 
 #: Above this redshift the Madau & Dickinson 2014 fit is an extrapolation (fitted 0 < z < 8).
 MADAU_DICKINSON_ZMAX = 8.0
+
+#: Default upper redshift of the integrals: the end of the star-formation fit's range. Mergers
+#: at 8 < z < 10 add well under 1% for that shape (and the lookback time changes by 0.2 Gyr).
+DEFAULT_ZMAX = MADAU_DICKINSON_ZMAX
 
 #: Default number of rows used for the population-averaged inspiral spectrum.
 SPECTRUM_ROWS = 20000
@@ -574,6 +578,7 @@ class RateModelLike(Protocol):
 
 #: Columns of the remnants table the cosmic budget reads.
 REQUIRED_COLUMNS: tuple[str, ...] = (
+    "remnant_status",
     "event",
     "sample",
     "weight",
@@ -592,61 +597,47 @@ class CosmicBudget:
     ``table``: the tidy table (:func:`budget_table`); ``summary``: JSON-able headline numbers,
     counts and notes; ``meta``: Parquet metadata for ``cosmic.parquet`` (units, rate model,
     cosmology, provenance with this stage's record, summary); ``warnings``: what the user must
-    be told (extrapolations, rows left out).
+    be told (extrapolations, rows left out); ``notes``: the model's standing caveats.
     """
 
     table: pd.DataFrame
     summary: dict[str, Any]
     meta: dict[str, Any]
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    notes: tuple[str, ...] = field(default_factory=tuple)
 
 
-def _bootstrap_means(
-    remnants: pd.DataFrame,
-    columns: Sequence[str],
-    n_draws: int,
-    rng: np.random.Generator,
-    sources: Collection[str],
-    selection: str,
-) -> dict[str, NDArray[np.float64]]:
-    from gwdeficit.resample import bootstrap_means
-
-    return bootstrap_means(remnants, columns, n_draws, rng, sources=sources, selection=selection)
+#: Helper columns added to a copy of the remnants table for the spectrum.
+_MCHIRP = "mchirp_msun"
+_FCUT = "fcut_hz"
 
 
-def merger_weights(remnants: pd.DataFrame) -> NDArray[np.float64]:
-    """Row weights of the population mean per merger: each event counts once, its rows
-    weighted by ``weight`` within the event (normalised to sum to one per event)."""
-    import pandas as pd
+def population_weights(pop: Any) -> NDArray[np.float64]:
+    """Row weights of the population mean per merger for a ``resample.Population``.
 
-    w = remnants["weight"].to_numpy(dtype=np.float64)
-    codes = pd.factorize(remnants["event"])[0]
-    per_event = np.bincount(codes, weights=w)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = np.where(per_event[codes] > 0, w / per_event[codes], 0.0)
-    return out
-
-
-def _estimated_mask(df: pd.DataFrame) -> NDArray[np.bool_]:
-    """Rows with remnant physics (status 'estimated', or finite erad when there is no status)."""
-    if "remnant_status" in df.columns:
-        ok = df["remnant_status"].astype(str).eq("estimated").to_numpy()
-    else:
-        ok = np.ones(len(df), dtype=bool)
-    return ok & np.isfinite(df["erad_msun"].to_numpy(dtype=np.float64))
+    The mean of ``x`` is ``sum_e W_e E_e[s x] / sum_e W_e E_e[s]`` (resample module docstring):
+    row ``r`` of event ``e`` weighs ``W_e w_r s_r / sum_{r in e} w_r``, in the population's
+    (sorted) row order. Normalised to sum to one.
+    """
+    ev = np.repeat(np.arange(pop.n_events), pop.counts)
+    wsum = np.add.reduceat(pop.row_weight, pop.starts)
+    w = pop.event_weight[ev] * pop.row_weight * pop.row_factor / wsum[ev]
+    return w / w.sum()
 
 
 def _spectrum_shape(
-    rows: pd.DataFrame,
+    pop: Any,
     f_hz: NDArray[np.float64],
     kernels: RedshiftKernels,
     rho_c: float,
     max_rows: int,
     rng: np.random.Generator,
 ) -> SpectrumShape:
-    mc = chirp_mass(rows["m1_msun"].to_numpy(np.float64), rows["m2_msun"].to_numpy(np.float64))
-    fcut = isco_gw_frequency(rows["mf_msun"].to_numpy(np.float64))
-    w = merger_weights(rows)
+    mc = pop.values[_MCHIRP][:, 0]
+    fcut = pop.values[_FCUT][:, 0]
+    w = population_weights(pop)
+    ok = np.isfinite(mc) & np.isfinite(fcut) & (mc > 0) & (fcut > 0) & (w > 0)
+    mc, fcut, w = mc[ok], fcut[ok], w[ok]
     if mc.size > max_rows:  # uniform subsample keeping each row's weight (ratio estimator)
         keep = np.sort(rng.choice(mc.size, size=max_rows, replace=False))
         mc, fcut, w = mc[keep], fcut[keep], w[keep]
@@ -660,12 +651,24 @@ def _interval(values: NDArray[np.float64]) -> dict[str, float]:
     return {name: float(qs[i]) for i, name in enumerate(QUANTILES)}
 
 
+def _with_spectrum_columns(remnants: pd.DataFrame) -> pd.DataFrame:
+    m1 = remnants["m1_msun"].to_numpy(np.float64)
+    m2 = remnants["m2_msun"].to_numpy(np.float64)
+    mf = remnants["mf_msun"].to_numpy(np.float64)
+    frame = remnants.copy()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frame[_MCHIRP] = chirp_mass(m1, m2)
+        frame[_FCUT] = isco_gw_frequency(mf)
+        frame[INSPIRAL_COLUMN] = inspiral_energy(frame[_MCHIRP], frame[_FCUT])
+    return frame
+
+
 def cosmic_budget(
     remnants: pd.DataFrame,
     rate_model: RateModelLike | Mapping[str, RateModelLike],
     cosmology: Any = None,
     *,
-    zmax: float = 10.0,
+    zmax: float = DEFAULT_ZMAX,
     n_draws: int = 2000,
     seed: int | None = 0,
     rng: np.random.Generator | None = None,
@@ -677,22 +680,25 @@ def cosmic_budget(
     selection: str = "none",
     inputs: Mapping[str, str] | None = None,
     source_name: str = "remnants table",
-    bootstrap: Callable[..., Mapping[str, ArrayLike]] | None = None,
 ) -> CosmicBudget:
     """Gravitational-wave energy density and mass-density history of a merging population.
 
     ``remnants``: the remnants table (schema.REMNANT_COLUMNS with the catalogue columns);
     ``rate_model``: one rate model for the whole table, or a mapping kind -> rate model (each
-    kind with its own rate and evolution; kinds without a rate, or without estimated rows, are
-    left out and said so; the kinds are then also summed as "all"); ``cosmology``: an astropy
-    cosmology, a realization name or a META_COSMOLOGY dict (default: the table's metadata, else
-    Planck18). Per draw (``n_draws``, seeded by ``seed`` or the given ``rng``), a rate is drawn
-    from the model and the population means per merger of erad, ejected and deficit (and of the
-    inspiral energy up to the remnant's Schwarzschild ISCO) come from
-    ``resample.bootstrap_means`` with the error ``sources`` switched on (``"rate"`` off holds the
-    rate at the model's median). Formulas: :func:`redshift_kernels`, :func:`omega_gw_inspiral`,
-    :func:`budget_draws`. ``inputs`` ({path: sha256}) goes into this stage's provenance record.
+    kind with its own rate and evolution; events count in their majority kind, see
+    ``resample.event_kinds``; kinds without a rate or without estimated rows are left out and
+    said so; the kinds are also summed as "all"); ``cosmology``: an astropy cosmology, a
+    realization name or a META_COSMOLOGY dict (default: the table's metadata, else Planck18).
+
+    Per draw (``n_draws``, seeded by ``seed`` or the given ``rng``) a rate is drawn from the
+    model and the population means per merger of erad, ejected and deficit (and of the inspiral
+    energy up to the remnant's Schwarzschild ISCO) come from ``resample.bootstrap_means`` with
+    the error ``sources`` switched on (``"rate"`` off holds the rate at the model's median);
+    ``selection`` as there. Formulas: :func:`redshift_kernels`, :func:`omega_gw_inspiral`,
+    :func:`budget_draws`. ``inputs`` ({path: sha256}) goes into this stage's provenance record;
+    ``source_name`` names the table in error messages.
     """
+    from gwdeficit.resample import bootstrap_means, event_kinds, prepare_population
     from gwdeficit.schema import (
         META_COSMOLOGY,
         META_PROVENANCE,
@@ -708,118 +714,161 @@ def cosmic_budget(
             f"{source_name}: missing column(s) {', '.join(missing)}; the cosmic budget needs a "
             "remnants table (run 'gwdeficit remnant' first)"
         )
-    if not (isinstance(n_draws, int | np.integer) and n_draws >= 1):
+    if isinstance(n_draws, bool) or not (isinstance(n_draws, int | np.integer) and n_draws >= 1):
         raise OptionError(f"--draws {n_draws!r}: must be an integer >= 1")
     if not (np.isfinite(zmax) and 0 < zmax <= 1000):
         raise OptionError(f"--zmax {zmax!r}: must be a number in (0, 1000]")
     if spectrum_rows < 1:
         raise OptionError(f"spectrum_rows {spectrum_rows!r}: must be >= 1")
+    if spectrum and not (np.isfinite(f_min_hz) and f_min_hz > 0):
+        raise OptionError(f"lowest frequency {f_min_hz!r} Hz must be a positive number")
+    n_draws = int(n_draws)
     rng = np.random.default_rng(seed) if rng is None else rng
     cosmo = resolve_cosmology(
         cosmology if cosmology is not None else remnants.attrs.get(META_COSMOLOGY)
     )
     rho_c = critical_density(cosmo)
-    means_fn = bootstrap or _bootstrap_means
+    stat_sources = [s for s in sources if s != "rate"]
     warnings: list[str] = []
+    notes: list[str] = []
+    frame = _with_spectrum_columns(remnants)
+    columns = [*MEAN_COLUMNS, INSPIRAL_COLUMN] if spectrum else list(MEAN_COLUMNS)
+    prepared = [*columns, _MCHIRP, _FCUT] if spectrum else columns
 
-    # Groups: (label, rows, model)
-    kinds_present = sorted(set(remnants["kind"].astype(str)))
-    groups: list[tuple[str, pd.DataFrame, RateModelLike]] = []
+    # Populations: (label, kind filter for resample, rate model)
+    groups: list[tuple[str, str | None, RateModelLike]] = []
     if isinstance(rate_model, Mapping):
+        ev_kind = event_kinds(remnants)
+        kinds_present = sorted(set(ev_kind.astype(str)))
         for k in sorted(set(rate_model) - set(kinds_present)):
-            warnings.append(f"a rate was given for {k} but the table has no {k} rows; left out")
+            warnings.append(f"a rate was given for {k} but the table has no {k} events; left out")
         for k in kinds_present:
             if k not in rate_model:
-                n_k = int((remnants["kind"].astype(str) == k).sum())
-                warnings.append(f"no rate given for {k}: its {n_k} row(s) are left out")
+                n_k = int((ev_kind.astype(str) == k).sum())
+                warnings.append(f"no rate given for {k}: its {n_k} event(s) are left out")
                 continue
-            groups.append((k, remnants[remnants["kind"].astype(str) == k], rate_model[k]))
+            groups.append((k, k, rate_model[k]))
     else:
+        kinds_present = sorted(set(remnants["kind"].astype(str)))
         label = kinds_present[0] if len(kinds_present) == 1 else "all"
-        groups.append((label, remnants, rate_model))
+        groups.append((label, None, rate_model))
 
-    counts: dict[str, dict[str, int]] = {}
-    used: list[tuple[str, pd.DataFrame, RateModelLike]] = []
-    for label, rows, model in groups:
-        ok = _estimated_mask(rows)
-        n_bad = int((~ok).sum())
-        counts[label] = {
-            "rows": len(rows),
-            "rows_used": int(ok.sum()),
-            "rows_not_estimated": n_bad,
-            "events": int(rows["event"].nunique()),
-            "events_used": int(rows.loc[ok, "event"].nunique()),
-        }
-        if n_bad:
-            warnings.append(
-                f"{label}: {n_bad} of {len(rows)} row(s) have no remnant estimate "
-                "(remnant_status not 'estimated'); left out of the mean per merger"
+    counts: dict[str, dict[str, Any]] = {}
+    used: list[tuple[str, str | None, RateModelLike, Any]] = []
+    for label, kind, model in groups:
+        try:
+            pop = prepare_population(
+                frame, prepared, selection=selection, kind=kind, source=source_name
             )
-        if not ok.any():
-            warnings.append(f"{label}: no row with a remnant estimate; kind left out")
+        except SchemaError as exc:
+            if kind is None:
+                raise
+            warnings.append(f"{label}: left out ({exc})")
             continue
-        used.append((label, rows[ok], model))
+        info = pop.info
+        counts[label] = {
+            k: info.get(k)
+            for k in (
+                "rows_in",
+                "rows_used",
+                "rows_not_estimated",
+                "rows_zero_weight_events",
+                "events_in",
+                "events_used",
+                "events_zero_weight",
+                "not_estimated_reasons",
+            )
+        }
+        if info.get("rows_not_estimated"):
+            warnings.append(
+                f"{label}: {info['rows_not_estimated']} of {info['rows_in']} row(s) have no "
+                "remnant estimate (remnant_status not_estimated); left out of the mean per merger"
+            )
+        if info.get("events_zero_weight"):
+            warnings.append(
+                f"{label}: {info['events_zero_weight']} event(s) with zero total weight left out"
+            )
+        used.append((label, kind, model, pop))
     if not used:
         raise OptionError(f"{source_name}: no population with both estimated rows and a rate")
 
-    for label, _, model in used:
-        ev = model.evolution
-        if ev.kind == "madau-dickinson" and zmax > MADAU_DICKINSON_ZMAX:
+    for label, _, model, _ in used:
+        if model.evolution.kind == "madau-dickinson" and zmax > MADAU_DICKINSON_ZMAX:
             warnings.append(
                 f"{label}: the Madau & Dickinson 2014 shape is fitted for 0 < z < 8; "
                 f"integrating to zmax = {zmax:g} extrapolates it"
             )
 
-    kernel_cache: dict[RateEvolution, RedshiftKernels] = {}
     f_grid = None
     if spectrum:
-        fmax = max(
-            float(np.nanmax(isco_gw_frequency(r["mf_msun"].to_numpy(np.float64))))
-            for _, r, _ in used
-        )
-        f_grid = frequency_grid(f_min_hz, fmax, per_decade)
-        warnings.append(
-            "spectrum: inspiral only (quadrupole dE/df up to the Schwarzschild ISCO of the "
-            "remnant mass); no merger-ringdown part"
-        )
-        if any(r["kind"].astype(str).isin(["BNS", "NSBH"]).any() for _, r, _ in used):
-            warnings.append(
-                "spectrum: for neutron-star binaries the ISCO cut-off ignores tidal disruption "
-                "and contact, which end the inspiral earlier"
+        fc_all = np.concatenate([pop.values[_FCUT][:, 0] for *_, pop in used])
+        fc_all = fc_all[np.isfinite(fc_all) & (fc_all > 0)]
+        if fc_all.size == 0:
+            warnings.append("spectrum: no row with a remnant mass; no spectrum computed")
+        elif float(fc_all.max()) <= f_min_hz:
+            raise OptionError(
+                f"lowest frequency {f_min_hz:g} Hz is above every inspiral cut-off "
+                f"(highest {float(fc_all.max()):.4g} Hz)"
             )
+        else:
+            f_grid = frequency_grid(f_min_hz, float(fc_all.max()), per_decade)
+            notes.append(
+                "spectrum: inspiral only (quadrupole dE/df up to the Schwarzschild ISCO of the "
+                "remnant mass); no merger-ringdown part"
+            )
+            ns = remnants["kind"].astype(str).isin(["BNS", "NSBH"]).any()
+            if ns:
+                notes.append(
+                    "spectrum: for neutron-star binaries the ISCO cut-off ignores tidal "
+                    "disruption and contact, which end the inspiral earlier"
+                )
 
+    kernel_cache: dict[RateEvolution, RedshiftKernels] = {}
     blocks: dict[str, list[DrawBlock]] = {}
     details: dict[str, dict[str, Any]] = {}
-    for label, rows, model in used:
+    for label, kind, model, pop in used:
         ev = model.evolution
         if ev not in kernel_cache:
             kernel_cache[ev] = redshift_kernels(ev, cosmo, zmax)
         kernels = kernel_cache[ev]
-        frame = rows.copy()
-        frame[INSPIRAL_COLUMN] = inspiral_energy(
-            chirp_mass(
-                frame["m1_msun"].to_numpy(np.float64), frame["m2_msun"].to_numpy(np.float64)
-            ),
-            isco_gw_frequency(frame["mf_msun"].to_numpy(np.float64)),
-        )
-        columns = [*MEAN_COLUMNS, INSPIRAL_COLUMN] if spectrum else list(MEAN_COLUMNS)
         if "rate" in sources:
             rates = np.asarray(model.draw(n_draws, rng), dtype=np.float64).reshape(-1)
         else:
             rates = np.full(n_draws, float(model.median))
-        stat_sources = [s for s in sources if s != "rate"]
-        means = means_fn(frame, columns, n_draws, rng, sources=stat_sources, selection=selection)
+        group_columns = list(columns)
         shape = None
-        if spectrum and f_grid is not None:
-            shape = _spectrum_shape(frame, f_grid, kernels, rho_c, spectrum_rows, rng)
-            if shape.rows < len(frame):
+        if f_grid is not None:
+            einsp = pop.values[INSPIRAL_COLUMN][:, 0]
+            n_bad = int((~np.isfinite(einsp)).sum())
+            if n_bad:
+                group_columns.remove(INSPIRAL_COLUMN)
                 warnings.append(
-                    f"{label}: spectrum shape from a random {shape.rows} of {len(frame)} rows"
+                    f"{label}: {n_bad} row(s) without a finite remnant mass are left out of the "
+                    "spectrum's shape; its band then reflects the rate only"
                 )
+            shape = _spectrum_shape(pop, f_grid, kernels, rho_c, spectrum_rows, rng)
+            if shape.rows < pop.n_rows - n_bad:
+                warnings.append(
+                    f"{label}: spectrum shape from a random {shape.rows} of "
+                    f"{pop.n_rows - n_bad} rows"
+                )
+        elif INSPIRAL_COLUMN in group_columns:
+            group_columns.remove(INSPIRAL_COLUMN)
+        means = bootstrap_means(
+            frame,
+            group_columns,
+            n_draws,
+            rng,
+            sources=stat_sources,
+            selection=selection,
+            kind=kind,
+        )
         blocks[label] = budget_draws(kernels, rates, means, rho_c, shape)
         details[label] = {
             "rate_model": model.describe(),
-            "mean_per_merger_msun": {c: _interval(np.asarray(means[c])) for c in columns},
+            "mean_per_merger_msun": {
+                c: _interval(np.asarray(means[c], dtype=np.float64)) for c in group_columns
+            },
             "spectrum_rows": None if shape is None else shape.rows,
         }
     if len(used) > 1:
@@ -845,7 +894,7 @@ def cosmic_budget(
         "lookback_gyr_at_zmax": float(some_kernels.lookback_gyr[-1]),
         "cosmology": describe_cosmology(cosmo),
         "critical_density_msun_mpc3": rho_c,
-        "draws": int(n_draws),
+        "draws": n_draws,
         "seed": seed,
         "sources": sorted(sources),
         "selection": selection,
@@ -857,10 +906,11 @@ def cosmic_budget(
         else {
             "f_min_hz": float(f_grid[0]),
             "f_max_hz": float(f_grid[-1]),
-            "points": f_grid.size,
+            "points": int(f_grid.size),
             "model": "inspiral only, quadrupole dE/df up to the remnant's Schwarzschild ISCO",
         },
         "warnings": list(warnings),
+        "notes": list(notes),
     }
     units = {"z": "", "lookback_gyr": "Gyr", "f_hz": "Hz"}
     units.update(dict(zip(table["quantity"], table["unit"], strict=True)))
@@ -868,7 +918,7 @@ def cosmic_budget(
         "cosmic",
         inputs=inputs,
         zmax=float(zmax),
-        draws=int(n_draws),
+        draws=n_draws,
         seed=seed,
         spectrum=bool(spectrum),
         f_min_hz=float(f_min_hz),
@@ -887,4 +937,6 @@ def cosmic_budget(
         META_PROVENANCE: merge_provenance(remnants.attrs, record),
         META_SUMMARY: summary,
     }
-    return CosmicBudget(table=table, summary=summary, meta=meta, warnings=tuple(warnings))
+    return CosmicBudget(
+        table=table, summary=summary, meta=meta, warnings=tuple(warnings), notes=tuple(notes)
+    )

@@ -39,8 +39,9 @@ def cosmic_mass_loss_figure(
     For each kind (default: every kind in the table, "all" first), the ``history`` rows
     ``erad_density_before`` (mass-energy radiated in gravitational waves by mergers between
     zmax and the epoch) and, where it is non-zero, ``ejected_density_before``: the median as a
-    line, the 68% and 90% intervals as bands. Lookback time runs from zmax (left) to today
-    (right); the top axis marks redshifts. Log-scaled densities in Msun Mpc^-3.
+    line, the 68% interval as a band (and the 90% interval for "all", or the only kind).
+    Lookback time runs from zmax (left) to today (right); the top axis marks redshifts.
+    Log-scaled densities in Msun Mpc^-3.
     """
     import numpy as np
     import pandas as pd
@@ -59,9 +60,24 @@ def cosmic_mass_loss_figure(
     with _style():
         fig = _new_figure(2.6)
         ax = fig.add_subplot(1, 1, 1)
+        # Kinds with non-zero ejecta; "all" repeats a single such kind, so it is then skipped.
+        ejecting = [
+            k
+            for k in chosen
+            if k != "all"
+            and (
+                hist.loc[
+                    (hist["kind"] == k) & (hist["quantity"] == "ejected_density_before"), "median"
+                ]
+                > 0
+            ).any()
+        ]
+        primary = "all" if "all" in chosen else (chosen[0] if chosen else None)
         for i, kind in enumerate(chosen):
             colour = OKABE_ITO[i % len(OKABE_ITO)]
             for quantity, label, style in _CURVES:
+                if quantity.startswith("ejected") and kind == "all" and len(ejecting) < 2:
+                    continue
                 rows = hist[(hist["kind"] == kind) & (hist["quantity"] == quantity)]
                 rows = rows.sort_values("lookback_gyr")
                 keep = rows["median"].to_numpy(dtype=np.float64) > 0
@@ -69,8 +85,9 @@ def cosmic_mass_loss_figure(
                     continue
                 rows = rows[keep]
                 t = rows["lookback_gyr"].to_numpy(dtype=np.float64)
-                ax.fill_between(t, rows["lo90"], rows["hi90"], color=colour, alpha=0.15, lw=0)
-                ax.fill_between(t, rows["lo68"], rows["hi68"], color=colour, alpha=0.3, lw=0)
+                if kind == primary:  # 90% band for the headline curve only, to stay readable
+                    ax.fill_between(t, rows["lo90"], rows["hi90"], color=colour, alpha=0.12, lw=0)
+                ax.fill_between(t, rows["lo68"], rows["hi68"], color=colour, alpha=0.25, lw=0)
                 ax.plot(t, rows["median"], color=colour, ls=style, label=f"{kind}: {label}")
                 drawn.append(rows.assign(kind=kind, quantity=quantity))
         data = (
@@ -96,6 +113,6 @@ def cosmic_mass_loss_figure(
             top.set_xlabel("redshift")
             top.spines["top"].set_visible(True)
         if drawn:
-            ax.legend(loc="lower right")
+            ax.legend(loc="lower right", handlelength=1.8)
     notes = {"kinds": chosen, "curves": len(drawn)}
     return PlottedFigure(name=FIGURE_NAME, figure=fig, data=data, notes=notes)

@@ -52,6 +52,9 @@ def _root(
 from gwdeficit.cli import plot as _plot  # noqa: E402
 
 app.command("plot")(_plot.plot)
+from gwdeficit.cli import cosmic as _cosmic  # noqa: E402
+
+app.command("cosmic")(_cosmic.cosmic)
 from gwdeficit.cli import ingest as _ingest  # noqa: E402
 
 app.command("ingest")(_ingest.ingest)

@@ -1,0 +1,246 @@
+"""``gwdeficit cosmic``: background energy density and mass-density history over cosmic time."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from gwdeficit.cli._common import (
+    ForceOpt,
+    JsonOpt,
+    SeedOpt,
+    WorkdirOpt,
+    err,
+    handles_errors,
+    parse_pairs,
+    print_json,
+)
+
+FileArg = Annotated[
+    Path | None,
+    typer.Argument(
+        help="Remnants table (Parquet from 'gwdeficit remnant'); default: the working folder's "
+        "remnants.parquet.",
+        show_default=False,
+    ),
+]
+RateOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--rate",
+        help="Rate density of the whole table: '24', '24 +14 -9' (90% bounds), '17.9..44' "
+        "(90% range) or 'samples:FILE[:COLUMN]'. Default: a published rate per kind.",
+    ),
+]
+RateKindOpt = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--rate-kind",
+        help="Rate of one kind, KIND=SPEC (repeatable), e.g. --rate-kind BNS='320 +490 -240'.",
+    ),
+]
+RateUnitOpt = Annotated[
+    str, typer.Option("--rate-unit", help="Unit of the rate numbers (astropy syntax).")
+]
+EvolutionOpt = Annotated[
+    str,
+    typer.Option("--evolution", help="Redshift evolution: none, powerlaw or madau-dickinson."),
+]
+KappaOpt = Annotated[
+    float, typer.Option("--kappa", help="Index of the powerlaw evolution (1+z)^kappa.")
+]
+RateZOpt = Annotated[
+    float | None,
+    typer.Option(
+        "--rate-z",
+        help="Redshift at which the rate is quoted (default 0; the built-in BBH default: 0.2).",
+    ),
+]
+ZmaxOpt = Annotated[
+    float,
+    typer.Option(
+        "--zmax",
+        help="Integrate mergers from today to zmax (default 8, the end of the Madau & "
+        "Dickinson 2014 fit; beyond it that shape is extrapolated, with a warning).",
+    ),
+]
+DrawsOpt = Annotated[int, typer.Option("--draws", help="Bootstrap draws.")]
+SpectrumOpt = Annotated[
+    bool,
+    typer.Option("--spectrum/--no-spectrum", help="Compute the inspiral spectrum Omega_gw(f) too."),
+]
+FminOpt = Annotated[
+    float, typer.Option("--f-min", help="Lowest observed frequency of the spectrum (Hz).")
+]
+SelectionOpt = Annotated[
+    str,
+    typer.Option("--selection", help="Population reweighting: none, inspiral-volume or column."),
+]
+FigureOpt = Annotated[
+    bool,
+    typer.Option("--figure/--no-figure", help="Write figures/cosmic_mass_loss.png."),
+]
+
+
+def _rate_models(
+    rate: str | None,
+    rate_kind: list[str] | None,
+    unit: str,
+    evolution: str,
+    kappa: float,
+    rate_z: float | None,
+    kinds: list[str],
+) -> Any:
+    """One rate model for the table (``--rate``), or one per kind (``--rate-kind`` / defaults)."""
+    from gwdeficit.rates import RateEvolution, default_rate, parse_kind_rates, parse_rate
+    from gwdeficit.schema import OptionError
+
+    evo = RateEvolution(evolution, kappa, 0.0 if rate_z is None else rate_z)
+    per_kind = parse_pairs(rate_kind, "--rate-kind")
+    if rate is not None and per_kind:
+        raise OptionError("give either --rate (whole table) or --rate-kind (per kind), not both")
+    if rate is not None:
+        return parse_rate(rate, unit=unit, evolution=evo)
+    if per_kind:
+        return parse_kind_rates(per_kind, unit=unit, evolution=evo)
+    models = {}
+    for k in kinds:
+        m = default_rate(k, RateEvolution(evolution, kappa, 0.0))
+        models[k] = m if rate_z is None else m.with_evolution(evo)
+    return models
+
+
+def _interval(entry: dict[str, Any], lo: str, hi: str) -> str:
+    return f"{entry[lo]:.2g}..{entry[hi]:.2g}"
+
+
+_SUMMARY_ROWS = (
+    ("gw_energy_density", "rho_gw c^2 [erg/cm3]"),
+    ("gw_energy_density_msun", "rho_gw c^2 [Msun c^2/Mpc3]"),
+    ("omega_gw", "Omega_gw"),
+    ("omega_gw_inspiral", "Omega_gw inspiral part"),
+    ("erad_density", "radiated in GWs [Msun/Mpc3]"),
+    ("ejected_density", "ejected [Msun/Mpc3]"),
+    ("deficit_density", "total mass lost [Msun/Mpc3]"),
+    ("merger_density", "mergers [1/Mpc3]"),
+)
+
+
+def _print_summary(summary: dict[str, Any], out: Path, figure: Path | None) -> None:
+    from rich import box
+    from rich.console import Console
+    from rich.markup import escape
+    from rich.table import Table
+
+    console = Console()
+    for kind, totals in summary["totals"].items():
+        table = Table(
+            title=f"{kind}: mergers at z = 0..{summary['zmax']:g} "
+            f"(lookback {summary['lookback_gyr_at_zmax']:.2f} Gyr, "
+            f"{summary['cosmology']['name']}); densities today",
+            title_justify="left",
+            box=box.SIMPLE_HEAD,
+        )
+        table.add_column("quantity", overflow="fold")
+        for name in ("median", "68%", "90%"):
+            table.add_column(name, justify="right", overflow="fold")
+        for key, label in _SUMMARY_ROWS:
+            if key in totals:
+                e = totals[key]
+                table.add_row(
+                    escape(label),
+                    f"{e['median']:.3g}",
+                    _interval(e, "lo68", "hi68"),
+                    _interval(e, "lo90", "hi90"),
+                )
+        console.print(table)
+    typer.echo(
+        f"{summary['draws']} draws, seed {summary['seed']}; research estimate. Wrote {out}"
+        + (f" and {figure}" if figure else "")
+    )
+
+
+@handles_errors
+def cosmic(
+    file: FileArg = None,
+    rate: RateOpt = None,
+    rate_kind: RateKindOpt = None,
+    rate_unit: RateUnitOpt = "Gpc-3 yr-1",
+    evolution: EvolutionOpt = "madau-dickinson",
+    kappa: KappaOpt = 0.0,
+    rate_z: RateZOpt = None,
+    zmax: ZmaxOpt = 8.0,
+    draws: DrawsOpt = 2000,
+    seed: SeedOpt = 0,
+    spectrum: SpectrumOpt = True,
+    f_min: FminOpt = 1e-5,
+    selection: SelectionOpt = "none",
+    figure: FigureOpt = True,
+    workdir: WorkdirOpt = None,
+    force: ForceOpt = False,
+    as_json: JsonOpt = False,
+) -> None:
+    """Gravitational-wave background energy density, Omega_gw and the mass-density history.
+
+    Folds the remnants' mean radiated energy and ejected mass per merger (with the bootstrap)
+    with the rate density and its redshift evolution over cosmic history, writes
+    cosmic.parquet (tables against redshift, lookback time and frequency) and a figure of the
+    cumulative mass loss against lookback time, and prints the totals.
+    """
+    from gwdeficit import workdir as wd
+    from gwdeficit.cosmic import cosmic_budget
+    from gwdeficit.schema import InputFileError
+
+    folder = wd.resolve_workdir(workdir)
+    path = Path(file) if file is not None else folder / wd.REMNANTS_FILE
+    if not path.exists():
+        hint = "" if file is not None else " (run 'gwdeficit remnant' first, or give FILE)"
+        raise InputFileError(f"{path}: no such file{hint}")
+    out = folder / wd.COSMIC_FILE
+    fig_path = folder / wd.FIGURES_DIR / "cosmic_mass_loss.png"
+    wd.check_writable(out, force, inputs=(path,))
+    if figure:
+        wd.check_writable(fig_path, force)
+    remnants = wd.read_parquet(path)
+    if "kind" not in remnants.columns:
+        from gwdeficit.schema import SchemaError
+
+        raise SchemaError(f"{path}: no 'kind' column; is this a remnants table?")
+    kinds = sorted(set(remnants["kind"].astype(str)))
+    models = _rate_models(rate, rate_kind, rate_unit, evolution, kappa, rate_z, kinds)
+    result = cosmic_budget(
+        remnants,
+        models,
+        zmax=zmax,
+        n_draws=draws,
+        seed=seed,
+        spectrum=spectrum,
+        f_min_hz=f_min,
+        selection=selection,
+        inputs={str(path): wd.file_sha256(path)},
+        source_name=str(path),
+    )
+    wd.write_parquet(result.table, out, result.meta, force=force, inputs=(path,))
+    written_fig = None
+    if figure:
+        from gwdeficit.figures import save_figure
+        from gwdeficit.figures_cosmic import cosmic_mass_loss_figure
+
+        plotted = cosmic_mass_loss_figure(result.table)
+        (written_fig,) = save_figure(plotted, fig_path.parent, formats=("png",), force=force)
+    for w in result.warnings:
+        err(f"warning: {w}")
+    for n in result.notes:
+        err(f"note: {n}")
+    if as_json:
+        print_json(
+            {
+                **result.summary,
+                "output": str(out),
+                "figure": None if written_fig is None else str(written_fig),
+            }
+        )
+    else:
+        _print_summary(result.summary, out, written_fig)
