@@ -12,7 +12,11 @@ from hypothesis import strategies as st
 from gwdeficit.fits import bns, isco, ns_eos, nsbh
 from gwdeficit.fits import neutron_star as ns
 from gwdeficit.fits.neutron_star import ns_remnant
+from gwdeficit.fits.registry import FitRangeWarning
 from gwdeficit.schema import OptionError
+
+# Range warnings are checked in test_range_flags; elsewhere out-of-range rows are expected.
+pytestmark = pytest.mark.filterwarnings("ignore::gwdeficit.fits.registry.FitRangeWarning")
 
 # Stand-in for the BBH remnant fits: non-spinning equal-mass BBH, M_f = 0.95162 M and
 # chi_f = 0.68646 (Scheel et al. 2009, PRD 79, 024003; from memory), applied to every row.
@@ -290,6 +294,31 @@ def test_range_flags():
     assert not _bns(1.4, 1.3, 2e4, 2e4)["in_fit_range"]  # outside the C-Love range
 
 
+def test_out_of_range_rows_are_named_and_warned():
+    with pytest.warns(FitRangeWarning, match=r"foucart-hinderer-nissanke-2018 \(1 rows\)"):
+        out = _nsbh([5.0, 14.0], [1.4, 1.4])
+    assert list(out["out_of_range"]) == ["", "foucart-hinderer-nissanke-2018"]
+    with pytest.warns(FitRangeWarning, match="yagi-yunes-2017"):
+        out = _bns(1.4, 1.3, 2e4, 2e4)
+    # Lambda = 2e4 gives C ~ 0.09: also below the Dietrich & Ujevic 2017 compactness range
+    expected = {"yagi-yunes-2017", "radice-2018-disk", "dietrich-ujevic-2017"}
+    assert set(str(out["out_of_range"]).split(";")) == expected
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        _nsbh(5.0, 1.4)  # in range: no warning
+        _nsbh(14.0, 1.4, warn=False)
+
+
+def test_fit_metadata_is_json_serialisable():
+    import json
+
+    meta = ns.ns_fits_metadata("maselli-2013")
+    names = [m["name"] for m in json.loads(json.dumps(meta))]
+    assert names[0] == "maselli-2013" and ns.FIT_FHN2018 in names
+
+
 # --------------------------------------------------------------------------------------------
 # Physical trends of the fits
 # --------------------------------------------------------------------------------------------
@@ -300,9 +329,16 @@ def test_range_flags():
 def test_fhn2018_trends(q, chi, c):
     # More matter stays outside for lighter holes, higher aligned spin and less compact stars
     # (Foucart 2012, PRD 86, 124007; Foucart, Hinderer & Nissanke 2018; from memory).
-    f = nsbh.remnant_mass_fraction_fhn2018(q, isco.isco_radius(chi), c)
+    r = isco.isco_radius(chi)
+    f = nsbh.remnant_mass_fraction_fhn2018(q, r, c)
     assert 0.0 <= f < 1.0
-    assert nsbh.remnant_mass_fraction_fhn2018(q * 1.1, isco.isco_radius(chi), c) <= f
+    # In Q the published fit falls only where R_ISCO C / (1 - 2C) > alpha eta^(2/3) / (3 beta)
+    # (sign of its eta-derivative); near Q = 1 with near-extremal spin it rises slightly with Q.
+    # The right side grows with eta, so checking it at the larger eta (at q) covers the step.
+    p = nsbh.FHN2018
+    eta = q / (1.0 + q) ** 2
+    if r * c / (1.0 - 2.0 * c) > p["alpha"] * eta ** (2.0 / 3.0) / (3.0 * p["beta"]):
+        assert nsbh.remnant_mass_fraction_fhn2018(q * 1.1, r, c) <= f
     assert nsbh.remnant_mass_fraction_fhn2018(q, isco.isco_radius(min(chi + 0.02, 1)), c) >= f
     assert nsbh.remnant_mass_fraction_fhn2018(q, isco.isco_radius(chi), c + 0.005) <= f
 

@@ -48,6 +48,7 @@ What is estimated per kind
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Callable, Mapping
 from typing import Any
 
@@ -73,6 +74,37 @@ STATUS_BAD_INPUT = "not_estimated:non_finite_input"
 ERAD_BBH = "bbh-fits"
 ERAD_PN_CONTACT = "pn3-tidal-to-contact"
 ERAD_NONE = "none"
+
+# Names used in the per-row ``out_of_range`` key and in :func:`ns_fits_metadata`.
+FIT_FHN2018 = "foucart-hinderer-nissanke-2018"
+FIT_DU2017 = "dietrich-ujevic-2017"
+FIT_RADICE2018 = "radice-2018-disk"
+FIT_BBH = "bbh-fits"
+
+
+def ns_fits_metadata(eos_relation: str = _eos.DEFAULT_C_LOVE) -> list[dict[str, Any]]:
+    """JSON-able description of the neutron-star fits (for the ``gwdeficit.fits`` record)."""
+    rel = _eos.c_love_relation(eos_relation)
+    return [
+        {"name": rel.name, "quantity": "ns_compactness", "citation": rel.source,
+         "calibrated": {"lambda_min": rel.lambda_range[0], "lambda_max": rel.lambda_range[1]}},
+        {"name": FIT_FHN2018, "quantity": "nsbh_remnant_matter",
+         "citation": "Foucart, Hinderer & Nissanke 2018, PRD 98, 081501(R), eq. 4",
+         "calibrated": dict(_nsbh.FHN2018_RANGE)},
+        {"name": FIT_DU2017, "quantity": "bns_dynamical_ejecta",
+         "citation": "Dietrich & Ujevic 2017, CQG 34, 105014, eq. 1",
+         "calibrated": dict(_bns.DU2017_RANGE)},
+        {"name": FIT_RADICE2018, "quantity": "bns_disk_mass",
+         "citation": "Radice et al. 2018, ApJ 869, 130", "calibrated": dict(_bns.RADICE2018_RANGE)},
+        {"name": "bauswein-2013", "quantity": "bns_prompt_collapse_mass",
+         "citation": "Bauswein, Baumgarte & Janka 2013, PRL 111, 131101",
+         "calibrated": {"equal_mass": True}},
+        {"name": "breu-rezzolla-2016", "quantity": "bns_supramassive_limit",
+         "citation": "Breu & Rezzolla 2016, MNRAS 459, 646", "calibrated": {}},
+        {"name": ERAD_PN_CONTACT, "quantity": "bns_erad_lower_bound",
+         "citation": "Blanchet 2014, Living Rev. Relativ. 17, 2, eq. 233; Flanagan & Hinderer "
+         "2008, PRD 77, 021502", "calibrated": {}},
+    ]  # fmt: skip
 
 
 def _kerr_isco_radius(chi: FloatArray) -> FloatArray:
@@ -113,6 +145,7 @@ def ns_remnant(
     mtov_msun: float | ArrayLike | None = None,
     r16_km: float | ArrayLike | None = None,
     bbh_remnant: BbhRemnant | None = None,
+    warn: bool = True,
 ) -> dict[str, NDArray[Any]]:
     """Remnant mass, spin, radiated energy and ejected mass of NSBH and BNS mergers, per row.
 
@@ -135,8 +168,10 @@ def ns_remnant(
     ``mb_remnant_msun`` (BNS), ``lambda1_used``, ``lambda2_used``, ``compactness1``,
     ``compactness2``, ``tidal_source1``, ``tidal_source2``, ``remnant_baryonic_frac`` (NSBH,
     FHN 2018), ``ejecta_dyn_msun``, ``disk_msun``, ``mthresh_msun`` (BNS prompt-collapse mass),
-    ``eos_relation``, ``baryonic_relation``. See the module docstring for the bookkeeping and
-    for what is not estimated.
+    ``eos_relation``, ``baryonic_relation``, ``out_of_range`` (";"-joined names of the fits
+    whose calibrated range the row lies outside; "" if none). With ``warn`` (default) one
+    :class:`gwdeficit.fits.registry.FitRangeWarning` summarises the out-of-range counts per
+    fit. See the module docstring for the bookkeeping and for what is not estimated.
     """
     kind_arr = np.asarray(kind).astype(str)
     inputs = (m1_msun, m2_msun, chi1, chi2, tilt1_rad, tilt2_rad, lambda1, lambda2)
@@ -193,6 +228,7 @@ def ns_remnant(
         "mthresh_msun": nan.copy(),
         "mb_remnant_msun": nan.copy(),
     }
+    flags: dict[str, NDArray[np.bool_]] = {}  # fit name -> rows outside its calibrated range
 
     # Neutron-star properties: body 2 is a NS in both kinds, body 1 only in a BNS.
     # (the BH of an NSBH is masked to NaN so that no stellar radius is applied to it)
@@ -228,13 +264,18 @@ def ns_remnant(
 
     sel = is_nsbh & finite & have_tidal
     if sel.any():
-        _nsbh_rows(out, sel, m1, m2, c1, c2, t1, t2, phi12, ns2, bbh_remnant)
+        _nsbh_rows(out, flags, sel, m1, m2, c1, c2, t1, t2, phi12, ns2, bbh_remnant)
     sel = is_bns & finite & have_tidal
     if sel.any():
         r16 = ns_radius_km if r16_km is None else r16_km
-        _bns_rows(out, sel, m1, m2, ns1, ns2, mtov_msun, r16)
+        _bns_rows(out, flags, sel, m1, m2, ns1, ns2, mtov_msun, r16)
 
     out["deficit_msun"] = out["erad_msun"] + out["ejected_msun"]
+    used = (is_bns & (ns1.source != _eos.SOURCE_NONE)) | (ns2.source != _eos.SOURCE_NONE)
+    flags[eos_relation] = used & ~np.where(is_bns, ns1.in_range & ns2.in_range, ns2.in_range)
+    out["out_of_range"] = _join_flags(flags, flat)
+    if warn:
+        _warn_out_of_range(flags, int(np.count_nonzero(out["remnant_status"] != STATUS_BAD_INPUT)))
     out["remnant_status"] = out["remnant_status"].astype(str)
     for key in (
         "erad_method",
@@ -247,8 +288,32 @@ def ns_remnant(
     return {key: value.reshape(shape) for key, value in out.items()}
 
 
+def _join_flags(flags: Mapping[str, NDArray[np.bool_]], shape: tuple[int, ...]) -> NDArray[Any]:
+    """Per row, the ";"-joined names of the fits whose range the row lies outside."""
+    text = np.full(shape, "", dtype=object)
+    for name, flag in flags.items():
+        text = np.where(flag, np.where(text == "", name, text + ";" + name), text)
+    return text.astype(str)
+
+
+def _warn_out_of_range(flags: Mapping[str, NDArray[np.bool_]], n_rows: int) -> None:
+    counts = {name: int(np.count_nonzero(f)) for name, f in flags.items() if f.any()}
+    if not counts:
+        return
+    from gwdeficit.fits.registry import FitRangeWarning
+
+    parts = ", ".join(f"{name} ({n} rows)" for name, n in counts.items())
+    warnings.warn(
+        f"neutron-star rows outside the calibrated range of: {parts}, of {n_rows} rows; the "
+        "fits are extrapolated there (in_fit_range is False for them)",
+        FitRangeWarning,
+        stacklevel=3,
+    )
+
+
 def _nsbh_rows(
     out: dict[str, NDArray[Any]],
+    flags: dict[str, NDArray[np.bool_]],
     sel: NDArray[np.bool_],
     m1: FloatArray,
     m2: FloatArray,
@@ -268,7 +333,9 @@ def _nsbh_rows(
     frac = _nsbh.remnant_mass_fraction_fhn2018(q, _kerr_isco_radius(chi_al), comp)
     mrem_b = frac * mb_ns
     disrupted = mrem_b > 0
-    in_range = _nsbh.fhn2018_in_range(q, chi_al, comp) & ns2.in_range[sel]
+    fhn_ok = _nsbh.fhn2018_in_range(q, chi_al, comp)
+    flags[FIT_FHN2018] = _scatter(sel, ~fhn_ok)
+    in_range = fhn_ok & ns2.in_range[sel]
 
     out["remnant_baryonic_frac"][sel] = frac
     out["ejected_msun"][sel] = mrem_b
@@ -292,7 +359,9 @@ def _nsbh_rows(
         out[key][clean_idx] = np.asarray(res[key], dtype=np.float64)
     if "vkick_kms" in res:
         out["vkick_kms"][clean_idx] = np.asarray(res["vkick_kms"], dtype=np.float64)
-    bbh_ok = np.asarray(res.get("in_fit_range", True), dtype=bool)
+    bbh_ok = np.broadcast_to(np.asarray(res.get("in_fit_range", True), dtype=bool), i.shape)
+    flags[FIT_BBH] = np.zeros(sel.shape, dtype=bool)
+    flags[FIT_BBH][i] = ~bbh_ok
     out["in_fit_range"][clean_idx] = in_range[~disrupted] & bbh_ok
     out["remnant_status"][clean_idx] = STATUS_ESTIMATED
     out["erad_method"][clean_idx] = ERAD_BBH
@@ -300,6 +369,7 @@ def _nsbh_rows(
 
 def _bns_rows(
     out: dict[str, NDArray[Any]],
+    flags: dict[str, NDArray[np.bool_]],
     sel: NDArray[np.bool_],
     m1: FloatArray,
     m2: FloatArray,
@@ -330,12 +400,11 @@ def _bns_rows(
     out["ejected_grav_msun"][sel] = ejected_grav
     out["mf_msun"][sel] = mf
     out["mb_remnant_msun"][sel] = b1 + b2 - ejected
-    out["in_fit_range"][sel] = (
-        _bns.du2017_in_range(a1, a2, k1, k2)
-        & _bns.radice2018_in_range(a1, a2, la1, la2)
-        & ns1.in_range[sel]
-        & ns2.in_range[sel]
-    )
+    du_ok = _bns.du2017_in_range(a1, a2, k1, k2)
+    radice_ok = _bns.radice2018_in_range(a1, a2, la1, la2)
+    flags[FIT_DU2017] = _scatter(sel, ~du_ok)
+    flags[FIT_RADICE2018] = _scatter(sel, ~radice_ok)
+    out["in_fit_range"][sel] = du_ok & radice_ok & ns1.in_range[sel] & ns2.in_range[sel]
     out["remnant_status"][sel] = STATUS_ESTIMATED
     if mtov_msun is not None and r16_km is not None:
         mtov, r16 = np.asarray(mtov_msun)[sel], np.asarray(r16_km)[sel]
@@ -343,3 +412,10 @@ def _bns_rows(
             raise OptionError("M_TOV and R_1.6 must be positive numbers (Msun, km)")
         out["mthresh_msun"][sel] = _bns.prompt_collapse_threshold_bauswein2013(mtov, r16)
         out["remnant_kind"][sel] = _bns.bns_remnant_kind(a1 + a2, mf, mtov, r16)
+
+
+def _scatter(sel: NDArray[np.bool_], values: NDArray[np.bool_]) -> NDArray[np.bool_]:
+    """Full-length boolean array: ``values`` at the rows ``sel``, False elsewhere."""
+    full = np.zeros(sel.shape, dtype=bool)
+    full[sel] = values
+    return full
