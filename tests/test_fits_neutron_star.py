@@ -34,6 +34,13 @@ def scheel_bbh(m1, m2, chi1, chi2, tilt1, tilt2, phi12):
     }
 
 
+def real_bbh(m1, m2, chi1, chi2, tilt1, tilt2, phi12):
+    """The project's BBH remnant fits (remnant stage), with a fixed seed for drawn angles."""
+    from gwdeficit.remnant import remnant_arrays
+
+    return remnant_arrays(m1, m2, chi1, chi2, tilt1, tilt2, phi12, seed=0)
+
+
 def _nsbh(m1, m2, chi1=0.0, tilt1=0.0, **kw):
     kw.setdefault("ns_radius_km", 12.0)
     kw.setdefault("bbh_remnant", scheel_bbh)
@@ -230,12 +237,14 @@ def test_bns_bookkeeping_gravitational_and_baryonic(ma, mb, r_km, brel):
 
 
 def test_nsbh_bookkeeping_non_disrupted_and_disrupted():
-    out = _nsbh([10.0, 3.0], [1.4, 1.4], [0.0, 0.9])
+    out = _nsbh([10.0, 3.0], [1.4, 1.4], [0.0, 0.9], bbh_remnant=real_bbh)
     clean, dis = 0, 1
     assert not out["disrupted"][clean] and out["disrupted"][dis]
     # non-disrupted: the BBH fits, nothing outside the hole
     assert out["ejected_msun"][clean] == 0.0
     assert out["mf_msun"][clean] + out["erad_msun"][clean] == pytest.approx(11.4, rel=1e-12)
+    assert 0 < out["erad_msun"][clean] < 0.1 * 11.4
+    assert np.isfinite(out["vkick_kms"][clean]) and np.isfinite(out["chif"][clean])
     assert out["erad_method"][clean] == ns.ERAD_BBH
     # disrupted: matter outside estimated, the final BH not
     assert out["ejected_msun"][dis] > 0.1

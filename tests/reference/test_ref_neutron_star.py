@@ -153,6 +153,62 @@ def test_o3_nsbh_events_have_no_remnant_matter():
         assert np.all(out["ejected_msun"] == 0.0)
 
 
+def test_bbh_limit_of_nsbh_matches_nr_equal_mass_bbh():
+    # An equal-mass "NSBH" whose companion is very compact (C = 0.3) leaves no matter outside
+    # the hole, so the binary-black-hole fits apply: non-spinning equal-mass BBH gives
+    # M_f = 0.95162 M and chi_f = 0.68646 (Scheel et al. 2009, PRD 79, 024003; from memory).
+    from gwdeficit.remnant import remnant_arrays
+
+    m = 1.4
+    out = ns_remnant(
+        m,
+        m,
+        0.0,
+        0.0,
+        0.0,
+        0.0,
+        np.nan,
+        np.nan,
+        "NSBH",
+        phi12_rad=0.0,
+        ns_radius_km=ns_eos.radius_from_compactness(m, 0.3),
+        bbh_remnant=lambda *a: remnant_arrays(*a, seed=0),
+    )
+    assert not out["disrupted"] and out["ejected_msun"] == 0.0
+    assert out["mf_msun"] / (2 * m) == pytest.approx(0.95162, abs=1e-3)
+    assert out["chif"] == pytest.approx(0.68646, abs=5e-3)
+    assert out["mf_msun"] + out["erad_msun"] == pytest.approx(2 * m, rel=1e-12)
+
+
+@pytest.mark.parametrize("q, chi", [(10.0, 0.0), (20.0, 0.5), (5.0, -0.3)])
+def test_bbh_limit_of_nsbh_for_heavy_black_holes_is_the_bbh_result(q, chi):
+    # Heavy black holes with low or anti-aligned spin do not disrupt the NS (Foucart, Hinderer
+    # & Nissanke 2018; from memory); the NSBH result is then the BBH-fit result of the
+    # project's remnant stage, row for row.
+    from gwdeficit.remnant import remnant_arrays
+
+    m2 = 1.35
+    tilt = 0.0 if chi >= 0 else np.pi
+    out = ns_remnant(
+        q * m2,
+        m2,
+        abs(chi),
+        0.0,
+        tilt,
+        0.0,
+        np.nan,
+        np.nan,
+        "NSBH",
+        phi12_rad=0.0,
+        ns_radius_km=12.0,
+        bbh_remnant=lambda *a: remnant_arrays(*a, seed=0),
+    )
+    ref = remnant_arrays(q * m2, m2, abs(chi), 0.0, tilt, 0.0, 0.0, seed=0)
+    assert not out["disrupted"]
+    for key in ("mf_msun", "chif", "erad_msun", "vkick_kms"):
+        assert out[key] == ref[key]
+
+
 def test_disruption_needs_high_spin_at_realistic_mass_ratio():
     # At Q = 7 significant remnant matter (> ~0.1 Msun) requires a BH spin of about 0.7 or more
     # for typical NS compactness (Foucart et al. 2013, PRD 87, 084006; from memory).
