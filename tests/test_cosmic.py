@@ -170,7 +170,8 @@ def test_table_columns_quantiles_and_sum_over_kinds():
 # --- the API on a remnants table ----------------------------------------------------------------
 def test_cosmic_budget_outputs_and_metadata():
     df = _remnants()
-    res = _budget(df, _rate("25 +10 -8", RateEvolution("madau-dickinson", z_ref=0.2)), seed=3)
+    evo = RateEvolution("madau-dickinson", z_ref=0.2)
+    res = _budget(df, _rate("25 +10 -8", evo), seed=3, zmax=10.0)
     t = res.table
     assert set(t["kind"]) == {"BBH"}
     assert set(t["section"]) == {"total", "history", "spectrum"}
@@ -194,8 +195,9 @@ def test_cosmic_budget_outputs_and_metadata():
     assert [r["stage"] for r in meta[META_PROVENANCE]] == ["remnant", "cosmic"]
     assert meta[META_PROVENANCE][-1]["params"]["seed"] == 3
     assert meta[META_SUMMARY]["draws"] == 300
-    assert any("Madau" in w for w in res.warnings)  # zmax = 10 > 8
-    assert any("inspiral only" in w for w in res.warnings)
+    assert any("Madau" in w and "extrapolates" in w for w in res.warnings)  # zmax 10 > 8
+    assert any("inspiral only" in n for n in res.notes)
+    assert res.summary["warnings"] == list(res.warnings)
 
 
 def test_seed_determinism():
@@ -243,7 +245,7 @@ def test_per_kind_rates_give_kinds_and_their_sum():
     assert any("XYZ" in w for w in res.warnings)
     ej = {k: _get(res.table, "ejected_density", kind=k)["median"].item() for k in ("BBH", "BNS")}
     assert ej["BBH"] == 0.0 and ej["BNS"] > 0.0
-    assert any("neutron-star" in w for w in res.warnings)
+    assert any("neutron-star" in n for n in res.notes)
     assert set(res.meta[META_RATE_MODEL]) == {"BBH", "BNS", "XYZ"}
 
 
@@ -275,3 +277,114 @@ def test_bad_inputs_raise_typed_errors():
             _budget(df, _rate("1"), **kw)
     with pytest.raises(OptionError, match="no population"):
         _budget(df, {"BNS": _rate("1")})
+
+
+def test_spectrum_weights_follow_the_bootstrap_population_mean():
+    # The spectrum's row weights must give the same population mean per merger as the
+    # bootstrap's point estimate (resample.point_estimates), including single-row events that
+    # carry their row weight and multi-row events that count once.
+    from gwdeficit.resample import Stat, point_estimates, prepare_population
+
+    df = pd.concat([_remnants(n_events=5), _remnants(n_events=7, n_samples=1, prefix="s", seed=4)])
+    pop = prepare_population(df, ["erad_msun"])
+    w = cosmic.population_weights(pop)
+    assert w.sum() == pytest.approx(1.0)
+    mine = float(np.sum(w * pop.values["erad_msun"][:, 0]))
+    ref = point_estimates(pop, [Stat("erad_msun", "erad_msun")])["erad_msun"]
+    assert mine == pytest.approx(ref, rel=1e-12)
+
+
+def test_row_order_does_not_change_the_result():
+    df = pd.concat([_remnants(), _remnants(kind="BNS", prefix="n", seed=1)], ignore_index=True)
+    rates = {"BBH": _rate("25 +10 -8"), "BNS": _rate("300 +200 -150")}
+    a = _budget(df, rates, seed=2).table
+    b = _budget(df.sample(frac=1.0, random_state=1), rates, seed=2).table
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_default_zmax_stays_inside_the_star_formation_fit():
+    res = _budget(_remnants(), _rate("25", RateEvolution("madau-dickinson")), spectrum=False)
+    assert res.summary["zmax"] == cosmic.MADAU_DICKINSON_ZMAX
+    assert not any("extrapolates" in w for w in res.warnings)
+
+
+# --- the command line ----------------------------------------------------------------------------
+def _write_remnants(folder, df):
+    from gwdeficit.workdir import REMNANTS_FILE, write_parquet
+
+    meta = {META_PROVENANCE: [{"stage": "remnant"}], META_COSMOLOGY: {"name": "Planck18"}}
+    return write_parquet(df, folder / REMNANTS_FILE, meta)
+
+
+def _run(*args):
+    from typer.testing import CliRunner
+
+    from gwdeficit.cli import app
+
+    return CliRunner().invoke(app, ["cosmic", *args])
+
+
+def test_cli_writes_table_metadata_figure_and_summary(workdir):
+    import json
+
+    from gwdeficit.workdir import COSMIC_FILE, FIGURES_DIR, file_sha256, read_parquet
+
+    src = _write_remnants(workdir, _remnants())
+    r = _run("--rate", "20 +10 -8", "--draws", "200", "--seed", "4")
+    assert r.exit_code == 0, r.output
+    assert "Omega_gw" in r.stdout and "rho_gw c^2" in r.stdout
+    out = read_parquet(workdir / COSMIC_FILE)
+    assert tuple(out.columns) == cosmic.TABLE_COLUMNS
+    assert out.attrs[META_UNITS]["f_hz"] == "Hz"
+    assert out.attrs[META_RATE_MODEL]["median"] == 20.0
+    prov = out.attrs[META_PROVENANCE]
+    assert [p["stage"] for p in prov] == ["remnant", "cosmic"]
+    assert prov[-1]["inputs"] == {str(src): file_sha256(src)}
+    assert prov[-1]["params"]["draws"] == 200 and prov[-1]["params"]["seed"] == 4
+    png = workdir / FIGURES_DIR / "cosmic_mass_loss.png"
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # Without --force nothing is overwritten (exit 2); with it, JSON on stdout.
+    again = _run("--rate", "20", "--draws", "50")
+    assert again.exit_code == 2 and "exists" in again.output
+    r = _run("--rate", "20", "--draws", "50", "--force", "--json", "--no-spectrum", "--no-figure")
+    assert r.exit_code == 0, r.output
+    summary = json.loads(r.stdout)
+    assert summary["totals"]["BBH"]["omega_gw"]["median"] > 0
+    assert summary["spectrum"] is None and summary["figure"] is None
+    assert not (read_parquet(workdir / COSMIC_FILE)["section"] == "spectrum").any()
+
+
+def test_cli_default_rates_per_kind(workdir):
+    df = pd.concat([_remnants(), _remnants(kind="BNS", prefix="n", seed=1)], ignore_index=True)
+    _write_remnants(workdir, df)
+    r = _run("--draws", "100", "--no-figure", "--json")
+    assert r.exit_code == 0, r.output
+    import json
+
+    summary = json.loads(r.stdout)
+    assert set(summary["totals"]) == {"BBH", "BNS", "all"}
+    assert summary["kinds"]["BBH"]["rate_model"]["z_ref"] == 0.2  # the BBH default's redshift
+
+
+@pytest.mark.parametrize(
+    ("args", "needle"),
+    [
+        (["--rate", "fast"], "rate"),
+        (["--rate", "20", "--rate-kind", "BBH=20"], "not both"),
+        (["--evolution", "sudden"], "evolution"),
+        (["--zmax", "-2"], "zmax"),
+        (["--draws", "0"], "draws"),
+        (["--rate", "20", "--rate-unit", "furlong"], "unit"),
+        (["--rate-unit", "Mpc-3 Myr-1"], "applies to --rate"),
+    ],
+)
+def test_cli_bad_options_exit_2(workdir, args, needle):
+    _write_remnants(workdir, _remnants(n_events=3))
+    r = _run(*args)
+    assert r.exit_code == 2, r.output
+    assert needle in r.output
+
+
+def test_cli_missing_input_exit_2(workdir):
+    r = _run("--rate", "20")
+    assert r.exit_code == 2 and "no such file" in r.output

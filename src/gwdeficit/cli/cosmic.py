@@ -94,13 +94,21 @@ def _rate_models(
     kinds: list[str],
 ) -> Any:
     """One rate model for the table (``--rate``), or one per kind (``--rate-kind`` / defaults)."""
-    from gwdeficit.rates import RateEvolution, default_rate, parse_kind_rates, parse_rate
+    from gwdeficit.rates import (
+        RATE_UNIT,
+        RateEvolution,
+        default_rate,
+        parse_kind_rates,
+        parse_rate,
+    )
     from gwdeficit.schema import OptionError
 
     evo = RateEvolution(evolution, kappa, 0.0 if rate_z is None else rate_z)
     per_kind = parse_pairs(rate_kind, "--rate-kind")
     if rate is not None and per_kind:
         raise OptionError("give either --rate (whole table) or --rate-kind (per kind), not both")
+    if rate is None and not per_kind and unit != RATE_UNIT:
+        raise OptionError(f"--rate-unit {unit!r} applies to --rate or --rate-kind; none given")
     if rate is not None:
         return parse_rate(rate, unit=unit, evolution=evo)
     if per_kind:
