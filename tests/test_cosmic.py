@@ -262,8 +262,12 @@ def test_cosmology_comes_from_the_table_metadata():
 def test_resolve_cosmology_forms_and_errors():
     assert cosmic.resolve_cosmology(None) is Planck18
     assert cosmic.resolve_cosmology("WMAP9") is WMAP9
+    assert cosmic.resolve_cosmology({"name": "planck18", "H0_km_s_Mpc": 1.0}) is Planck18
     custom = cosmic.resolve_cosmology({"name": "mine", "H0": 70.0, "Om0": 0.3})
     assert custom.H0.value == 70.0 and custom.Om0 == 0.3
+    again = cosmic.resolve_cosmology(cosmic.describe_cosmology(custom))
+    assert again.H0.value == 70.0 and again.Om0 == 0.3 and again.name == "mine"
+    assert cosmic.describe_cosmology(Planck18)["name"] == "Planck18"
     with pytest.raises(OptionError, match="not known"):
         cosmic.resolve_cosmology("Planck99")
 

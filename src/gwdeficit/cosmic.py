@@ -31,6 +31,7 @@ from typing import TYPE_CHECKING, Any, Protocol
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from gwdeficit.convert import chirp_mass
 from gwdeficit.rates import RateEvolution
 from gwdeficit.schema import OptionError, SchemaError
 
@@ -89,17 +90,6 @@ INSPIRAL_COLUMN = "einsp_msun"
 # --------------------------------------------------------------------------------------------
 # Binary and spectrum formulas
 # --------------------------------------------------------------------------------------------
-
-
-def chirp_mass(m1_msun: ArrayLike, m2_msun: ArrayLike) -> NDArray[np.float64]:
-    """Chirp mass ``Mc = (m1 m2)^(3/5) / (m1 + m2)^(1/5)`` in Msun.
-
-    The mass combination that sets the leading-order (quadrupole) inspiral phase and amplitude,
-    Peters & Mathews 1963, Phys. Rev. 131, 435; valid for any positive masses.
-    """
-    m1 = np.asarray(m1_msun, dtype=np.float64)
-    m2 = np.asarray(m2_msun, dtype=np.float64)
-    return (m1 * m2) ** 0.6 / (m1 + m2) ** 0.2
 
 
 def isco_gw_frequency(mass_msun: ArrayLike) -> NDArray[np.float64]:
@@ -321,41 +311,60 @@ def frequency_grid(f_min: float, f_max: float, per_decade: int = 25) -> NDArray[
 
 
 def resolve_cosmology(spec: Any = None) -> FLRW:
-    """An astropy cosmology from ``None`` (Planck18), a realization name, a cosmology object, or
-    a metadata dict ``{"name": ..., "H0": ..., "Om0": ...}`` (schema.META_COSMOLOGY).
+    """An astropy cosmology from ``None`` (Planck18), a realization name (case-insensitive), a
+    cosmology object, or a metadata dict (schema.META_COSMOLOGY, as written by the ingest stage).
 
     A dict whose name is not one of astropy's realizations is rebuilt as a flat LambdaCDM from
-    its ``H0`` and ``Om0`` (and ``Tcmb0`` if given); otherwise :class:`OptionError`.
+    its ``H0_km_s_Mpc`` (or ``H0``), ``Om0`` and ``Tcmb0_K`` (or ``Tcmb0``, default 0);
+    anything else raises :class:`OptionError`.
     """
     from astropy import cosmology as ac
 
+    from gwdeficit.convert import DEFAULT_COSMOLOGY, available_cosmologies, get_cosmology
+
     if spec is None:
-        return ac.Planck18
+        return get_cosmology(DEFAULT_COSMOLOGY)
     if isinstance(spec, ac.FLRW):
         return spec
     name = spec.get("name") if isinstance(spec, Mapping) else spec
-    if isinstance(name, str) and name in ac.realizations.available:
-        return getattr(ac.realizations, name)
-    if isinstance(spec, Mapping) and "H0" in spec and "Om0" in spec:
-        try:
-            return ac.FlatLambdaCDM(
-                H0=float(spec["H0"]), Om0=float(spec["Om0"]), Tcmb0=float(spec.get("Tcmb0", 0.0))
-            )
-        except (TypeError, ValueError) as exc:
-            raise OptionError(f"cosmology {dict(spec)!r} cannot be rebuilt: {exc}") from exc
+    known = {n.lower() for n in available_cosmologies()}
+    if isinstance(name, str) and name.strip().lower() in known:
+        return get_cosmology(name)
+    if isinstance(spec, Mapping):
+        h0 = spec.get("H0_km_s_Mpc", spec.get("H0"))
+        om0 = spec.get("Om0")
+        if h0 is not None and om0 is not None:
+            try:
+                tcmb = float(spec.get("Tcmb0_K", spec.get("Tcmb0", 0.0)) or 0.0)
+                return ac.FlatLambdaCDM(
+                    H0=float(h0), Om0=float(om0), Tcmb0=tcmb, name=str(name or "custom")
+                )
+            except (TypeError, ValueError) as exc:
+                raise OptionError(f"cosmology {dict(spec)!r} cannot be rebuilt: {exc}") from exc
     raise OptionError(
-        f"cosmology {name!r} is not known; valid names: {', '.join(ac.realizations.available)}"
+        f"cosmology {name!r} is not known; valid: {', '.join(available_cosmologies())}, or a "
+        "dict with H0_km_s_Mpc and Om0"
     )
 
 
 def describe_cosmology(cosmology: FLRW) -> dict[str, Any]:
-    """JSON-able description of a cosmology for schema.META_COSMOLOGY."""
+    """JSON-able description of a cosmology for schema.META_COSMOLOGY.
+
+    A built-in realization is described by ``convert.cosmology_record``; any other cosmology
+    with the same keys where they apply.
+    """
+    from gwdeficit.convert import available_cosmologies, cosmology_record, get_cosmology
+
+    name = cosmology.name
+    if name in available_cosmologies() and get_cosmology(name) == cosmology:
+        return cosmology_record(name)
     return {
-        "name": cosmology.name,
-        "H0": float(cosmology.H0.to_value("km / (Mpc s)")),
-        "Om0": float(cosmology.Om0),
-        "Tcmb0": float(cosmology.Tcmb0.to_value("K")),
+        "name": name,
         "class": type(cosmology).__name__,
+        "H0_km_s_Mpc": float(cosmology.H0.to_value("km / (Mpc s)")),
+        "Om0": float(cosmology.Om0),
+        "Ode0": float(cosmology.Ode0),
+        "Tcmb0_K": float(cosmology.Tcmb0.to_value("K")),
     }
 
 
