@@ -246,6 +246,9 @@ def test_per_kind_rates_give_kinds_and_their_sum():
     ej = {k: _get(res.table, "ejected_density", kind=k)["median"].item() for k in ("BBH", "BNS")}
     assert ej["BBH"] == 0.0 and ej["BNS"] > 0.0
     assert any("neutron-star" in n for n in res.notes)
+    # The summed spectrum still integrates to the summed inspiral total, draw by draw.
+    for k in ("BBH", "BNS", "all"):
+        assert res.summary["totals"][k]["spectrum_integral_rel_diff"] < 1e-3
     assert set(res.meta[META_RATE_MODEL]) == {"BBH", "BNS", "XYZ"}
 
 
