@@ -58,6 +58,12 @@ app.command("cosmic")(_cosmic.cosmic)
 from gwdeficit.cli import ingest as _ingest  # noqa: E402
 
 app.command("ingest")(_ingest.ingest)
+from gwdeficit.cli import remnant as _remnant  # noqa: E402
+
+app.command("remnant")(_remnant.remnant)
+from gwdeficit.cli import fits as _fits  # noqa: E402
+
+app.command("fits")(_fits.fits)
 
 
 def main() -> None:

@@ -215,7 +215,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="parameter-free: spins + test-particle ISCO angular momentum of the final hole",
         calibrated=(),
         in_default=False,
-        kernel=lambda c: np.sqrt(spin._bkl_par(c.nu, c.s_par, c.bkl_w) ** 2 + c.perp_sq),
+        kernel=lambda c: spin._bkl_magnitude(spin._bkl_par(c.nu, c.s_par, c.bkl_w), c.perp_sq),
         function=spin.buonanno_kidder_lehner_2008,
     ),
     Fit(

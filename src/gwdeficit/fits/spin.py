@@ -91,7 +91,8 @@ def _br09_kernel(q, nu, chi1z, chi2z, spin_sq, c=BR09_COEFFICIENTS):
     lq = np.abs(ell) * q
     opq = 1.0 + q
     # |a1 + a2 q^2 + l q Lhat| / (1 + q)^2; the radicand is >= (|S| - lq)^2 >= 0 up to rounding.
-    return np.sqrt(np.maximum(spin_sq + lq * (2.0 * sz + lq), 0.0)) / (opq * opq)
+    chif = np.sqrt(np.maximum(spin_sq + lq * (2.0 * sz + lq), 0.0)) / (opq * opq)
+    return np.minimum(chif, 1.0)
 
 
 def barausse_rezzolla_2009(
@@ -117,7 +118,9 @@ def barausse_rezzolla_2009(
 
     Calibrated range (approximate, from memory): NR simulations with 1/4 <~ q <= 1 and spin
     magnitudes up to ~0.8, quoted accuracy ~0.01 in a_f. Built to reproduce the test-particle
-    limit q -> 0 (a_f -> a1) exactly.
+    limit q -> 0 (a_f -> a1) exactly. For near-extremal aligned spins at small q (far outside
+    the calibrated range) the formula exceeds the Kerr bound (da_f/dnu = +0.45 at a = 1, nu = 0,
+    where the test-particle slope is 0); results are capped at 1.
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
@@ -140,7 +143,8 @@ def _r08_kernel(q, nu, chi1z, chi2z, perp_sq, c=R08_COEFFICIENTS):
     par = at + nu * (
         at * (c["s4"] * at + c["s5"] * nu + c["t0"]) + _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
     )
-    return np.sqrt(par * par + perp_sq)
+    chif = np.sqrt(par * par + perp_sq)
+    return np.minimum(chif, 1.0)
 
 
 def rezzolla_2008(
@@ -166,7 +170,8 @@ def rezzolla_2008(
     ApJL 704, L40. For aligned spins the result is exactly R08.
 
     Calibrated range (approximate, from memory): aligned-spin NR simulations with
-    1/4 <~ q <= 1 and |a| up to ~0.8; built to give a_f -> a1 as q -> 0.
+    1/4 <~ q <= 1 and |a| up to ~0.8; built to give a_f -> a1 as q -> 0. Capped at the Kerr
+    bound 1, which the formula exceeds for near-extremal aligned spins at small q.
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
@@ -227,7 +232,8 @@ def buonanno_kidder_lehner_2008(
 
     Here the orbit is taken as equatorial and the in-plane total spin |a1_perp + q^2 a2_perp|
     / (1 + q)^2 is added in quadrature (the vector sum of the same picture); BKL's treatment
-    of inclined orbits is not reproduced. No calibration: an estimate, never in the default.
+    of inclined orbits is not reproduced; the magnitude is capped at the Kerr bound 1 (reached
+    for near-extremal in-plane primary spins). No calibration: an estimate, never in the default.
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
@@ -237,4 +243,10 @@ def buonanno_kidder_lehner_2008(
     perp_sq = (chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi) / opq4
     nu = _nu(q)
     par = _bkl_par(nu, s_par, _bkl_w(nu, s_par))
-    return np.sqrt(par * par + perp_sq)
+    return _bkl_magnitude(par, perp_sq)
+
+
+def _bkl_magnitude(par, perp_sq):
+    """|chi_f| from the parallel and in-plane parts, capped at the Kerr bound 1."""
+    chif = np.sqrt(par * par + perp_sq)
+    return np.minimum(chif, 1.0)
