@@ -75,6 +75,23 @@ ERAD_BBH = "bbh-fits"
 ERAD_PN_CONTACT = "pn3-tidal-to-contact"
 ERAD_NONE = "none"
 
+# Status and erad-method labels are carried as small integer codes until the end of
+# :func:`ns_remnant` (full-length string arrays are costly at 1e6 rows).
+_STATUS_LABELS = (STATUS_BAD_INPUT, STATUS_NO_TIDAL, STATUS_DISRUPTED, STATUS_NO_BBH,
+                  STATUS_ESTIMATED)  # fmt: skip
+_ERAD_LABELS = (ERAD_NONE, ERAD_BBH, ERAD_PN_CONTACT)
+_SC = {label: np.int8(i) for i, label in enumerate(_STATUS_LABELS)}
+_EC = {label: np.int8(i) for i, label in enumerate(_ERAD_LABELS)}
+
+
+def _labels(codes: NDArray[np.int8], labels: tuple[str, ...]) -> NDArray[np.str_]:
+    """Strings for integer codes; the dtype fits the longest label actually present."""
+    present = np.unique(codes)
+    table = np.full(len(labels), "", dtype=object)
+    table[present] = [labels[i] for i in present]
+    return np.asarray(table.astype(str))[codes]
+
+
 # Names used in the per-row ``out_of_range`` key and in :func:`ns_fits_metadata`.
 FIT_FHN2018 = "foucart-hinderer-nissanke-2018"
 FIT_DU2017 = "dietrich-ujevic-2017"
@@ -219,8 +236,8 @@ def ns_remnant(
         "in_fit_range": np.zeros(flat, dtype=bool),
         "disrupted": np.zeros(flat, dtype=bool),
         "remnant_kind": np.full(flat, "", dtype="<U4"),
-        "remnant_status": np.full(flat, STATUS_BAD_INPUT, dtype=object),
-        "erad_method": np.full(flat, ERAD_NONE, dtype=object),
+        "remnant_status": np.full(flat, _SC[STATUS_BAD_INPUT]),
+        "erad_method": np.full(flat, _EC[ERAD_NONE]),
         "erad_lower_bound": np.zeros(flat, dtype=bool),
         "remnant_baryonic_frac": nan.copy(),
         "ejecta_dyn_msun": nan.copy(),
@@ -253,14 +270,14 @@ def ns_remnant(
     out["lambda2_used"] = ns2.lam.copy()
     out["compactness1"] = np.where(bh1, np.nan, ns1.compactness)
     out["compactness2"] = ns2.compactness.copy()
-    out["tidal_source1"] = np.where(bh1, "bh", ns1.source).astype(object)
-    out["tidal_source2"] = ns2.source.astype(object)
-    out["eos_relation"] = np.full(flat, eos_relation, dtype=object)
-    out["baryonic_relation"] = np.full(flat, baryonic_relation, dtype=object)
+    out["tidal_source1"] = np.where(bh1, "bh", ns1.source)
+    out["tidal_source2"] = ns2.source.copy()
+    out["eos_relation"] = np.full(flat, eos_relation)
+    out["baryonic_relation"] = np.full(flat, baryonic_relation)
 
     ns2_ok = ns2.source != _eos.SOURCE_NONE
     have_tidal = np.where(is_bns, (ns1.source != _eos.SOURCE_NONE) & ns2_ok, ns2_ok)
-    out["remnant_status"][finite & ~have_tidal] = STATUS_NO_TIDAL
+    out["remnant_status"][finite & ~have_tidal] = _SC[STATUS_NO_TIDAL]
 
     sel = is_nsbh & finite & have_tidal
     if sel.any():
@@ -275,25 +292,23 @@ def ns_remnant(
     flags[eos_relation] = used & ~np.where(is_bns, ns1.in_range & ns2.in_range, ns2.in_range)
     out["out_of_range"] = _join_flags(flags, flat)
     if warn:
-        _warn_out_of_range(flags, int(np.count_nonzero(out["remnant_status"] != STATUS_BAD_INPUT)))
-    out["remnant_status"] = out["remnant_status"].astype(str)
-    for key in (
-        "erad_method",
-        "tidal_source1",
-        "tidal_source2",
-        "eos_relation",
-        "baryonic_relation",
-    ):
-        out[key] = out[key].astype(str)
+        _warn_out_of_range(
+            flags, int(np.count_nonzero(out["remnant_status"] != _SC[STATUS_BAD_INPUT]))
+        )
+    out["remnant_status"] = _labels(out["remnant_status"], _STATUS_LABELS)
+    out["erad_method"] = _labels(out["erad_method"], _ERAD_LABELS)
     return {key: value.reshape(shape) for key, value in out.items()}
 
 
 def _join_flags(flags: Mapping[str, NDArray[np.bool_]], shape: tuple[int, ...]) -> NDArray[Any]:
     """Per row, the ";"-joined names of the fits whose range the row lies outside."""
-    text = np.full(shape, "", dtype=object)
-    for name, flag in flags.items():
-        text = np.where(flag, np.where(text == "", name, text + ";" + name), text)
-    return text.astype(str)
+    names = list(flags)
+    bits = np.zeros(shape, dtype=np.int64)
+    for i, name in enumerate(names):
+        bits |= flags[name].astype(np.int64) << i
+    codes, inverse = np.unique(bits, return_inverse=True)
+    labels = [";".join(n for i, n in enumerate(names) if int(c) >> i & 1) for c in codes]
+    return np.asarray(labels, dtype=str)[inverse.reshape(shape)]
 
 
 def _warn_out_of_range(flags: Mapping[str, NDArray[np.bool_]], n_rows: int) -> None:
@@ -345,12 +360,12 @@ def _nsbh_rows(
 
     idx = np.flatnonzero(sel)
     dis_idx, clean_idx = idx[disrupted], idx[~disrupted]
-    out["remnant_status"][dis_idx] = STATUS_DISRUPTED
+    out["remnant_status"][dis_idx] = _SC[STATUS_DISRUPTED]
     out["in_fit_range"][dis_idx] = in_range[disrupted]
     if clean_idx.size == 0:
         return
     if bbh_remnant is None:
-        out["remnant_status"][clean_idx] = STATUS_NO_BBH
+        out["remnant_status"][clean_idx] = _SC[STATUS_NO_BBH]
         out["in_fit_range"][clean_idx] = in_range[~disrupted]
         return
     i = clean_idx
@@ -363,8 +378,8 @@ def _nsbh_rows(
     flags[FIT_BBH] = np.zeros(sel.shape, dtype=bool)
     flags[FIT_BBH][i] = ~bbh_ok
     out["in_fit_range"][clean_idx] = in_range[~disrupted] & bbh_ok
-    out["remnant_status"][clean_idx] = STATUS_ESTIMATED
-    out["erad_method"][clean_idx] = ERAD_BBH
+    out["remnant_status"][clean_idx] = _SC[STATUS_ESTIMATED]
+    out["erad_method"][clean_idx] = _EC[ERAD_BBH]
 
 
 def _bns_rows(
@@ -392,7 +407,7 @@ def _bns_rows(
     mf = a1 + a2 - erad - ejected_grav
 
     out["erad_msun"][sel] = erad
-    out["erad_method"][sel] = ERAD_PN_CONTACT
+    out["erad_method"][sel] = _EC[ERAD_PN_CONTACT]
     out["erad_lower_bound"][sel] = True
     out["ejecta_dyn_msun"][sel] = dyn
     out["disk_msun"][sel] = disk
@@ -405,7 +420,7 @@ def _bns_rows(
     flags[FIT_DU2017] = _scatter(sel, ~du_ok)
     flags[FIT_RADICE2018] = _scatter(sel, ~radice_ok)
     out["in_fit_range"][sel] = du_ok & radice_ok & ns1.in_range[sel] & ns2.in_range[sel]
-    out["remnant_status"][sel] = STATUS_ESTIMATED
+    out["remnant_status"][sel] = _SC[STATUS_ESTIMATED]
     if mtov_msun is not None and r16_km is not None:
         mtov, r16 = np.asarray(mtov_msun)[sel], np.asarray(r16_km)[sel]
         if np.any(~(np.isfinite(mtov) & (mtov > 0))) or np.any(~(np.isfinite(r16) & (r16 > 0))):
