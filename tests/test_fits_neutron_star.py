@@ -203,6 +203,23 @@ def test_bad_arguments_raise_option_error(kwargs, match):
         ns_remnant(*args.values(), **opts)
 
 
+def test_non_finite_ns_spin_of_nsbh_is_flagged_not_passed_to_bbh_fits():
+    out = ns_remnant(
+        [7.0, 7.0],
+        1.4,
+        0.0,
+        [np.nan, 0.0],
+        0.0,
+        0.0,
+        np.nan,
+        np.nan,
+        "NSBH",
+        ns_radius_km=12.0,
+        bbh_remnant=real_bbh,
+    )
+    assert list(out["remnant_status"]) == [ns.STATUS_BAD_INPUT, ns.STATUS_ESTIMATED]
+
+
 def test_non_finite_row_is_flagged_and_others_unaffected():
     out = _bns([1.4, np.nan], [1.3, 1.3], ns_radius_km=12.0)
     assert out["remnant_status"][1] == ns.STATUS_BAD_INPUT

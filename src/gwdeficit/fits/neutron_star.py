@@ -221,8 +221,9 @@ def ns_remnant(
             raise OptionError("masses must be positive")
     is_nsbh = kind_arr == "NSBH"
     is_bns = ~is_nsbh
+    # every spin is needed: the BBH fits of the NSBH limit use the NS spin too
     finite = np.isfinite(m1) & np.isfinite(m2) & np.isfinite(c1) & np.isfinite(t1)
-    finite &= np.where(is_bns, np.isfinite(c2) & np.isfinite(t2), True)
+    finite &= np.isfinite(c2) & np.isfinite(t2)
 
     flat = m1.shape
     nan = np.full(flat, np.nan)
