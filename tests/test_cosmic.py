@@ -395,3 +395,38 @@ def test_cli_bad_options_exit_2(workdir, args, needle):
 def test_cli_missing_input_exit_2(workdir):
     r = _run("--rate", "20")
     assert r.exit_code == 2 and "no such file" in r.output
+
+
+def test_cli_computes_remnants_from_a_catalogue(workdir):
+    from gwdeficit.workdir import CATALOGUE_FILE, REMNANTS_FILE, read_parquet, write_parquet
+
+    rng = np.random.default_rng(9)
+    n = 60
+    m1 = rng.uniform(10.0, 40.0, n)
+    cat = pd.DataFrame(
+        {
+            "event": np.repeat([f"ev{i}" for i in range(6)], 10),
+            "sample": np.tile(np.arange(10), 6),
+            "weight": 1.0,
+            "m1_msun": m1,
+            "m2_msun": m1 * rng.uniform(0.4, 1.0, n),
+            "chi1": rng.uniform(0, 0.8, n),
+            "chi2": rng.uniform(0, 0.8, n),
+            "tilt1_rad": rng.uniform(0, np.pi, n),
+            "tilt2_rad": rng.uniform(0, np.pi, n),
+            "phi12_rad": rng.uniform(0, 2 * np.pi, n),
+            "z": rng.uniform(0.1, 0.5, n),
+            "dl_mpc": 1000.0,
+            "kind": "BBH",
+            "spin_assumption": "full",
+            "input_row": np.arange(1, n + 1),
+        }
+    )
+    write_parquet(cat, workdir / CATALOGUE_FILE, {META_PROVENANCE: [{"stage": "ingest"}]})
+    r = _run("--rate", "20", "--draws", "50", "--no-figure")
+    assert r.exit_code == 0, r.output
+    assert "computing its remnants first" in r.stderr
+    rem = read_parquet(workdir / REMNANTS_FILE)
+    assert len(rem) == n and "erad_msun" in rem.columns
+    stages = [p["stage"] for p in read_parquet(workdir / "cosmic.parquet").attrs[META_PROVENANCE]]
+    assert stages[0] == "ingest" and stages[-1] == "cosmic" and len(stages) == 3

@@ -750,7 +750,7 @@ def cosmic_budget(
     # Populations: (label, kind filter for resample, rate model)
     groups: list[tuple[str, str | None, RateModelLike]] = []
     if isinstance(rate_model, Mapping):
-        ev_kind = event_kinds(remnants)
+        ev_kind = event_kinds(remnants)  # each event counts in its majority kind
         kinds_present = sorted(set(ev_kind.astype(str)))
         for k in sorted(set(rate_model) - set(kinds_present)):
             warnings.append(f"a rate was given for {k} but the table has no {k} events; left out")
@@ -828,7 +828,9 @@ def cosmic_budget(
                 "spectrum: inspiral only (quadrupole dE/df up to the Schwarzschild ISCO of the "
                 "remnant mass); no merger-ringdown part"
             )
-            ns = remnants["kind"].astype(str).isin(["BNS", "NSBH"]).any()
+            ev_kind = event_kinds(remnants).astype(str)
+            used_kinds = {k for _, k, _, _ in used}
+            ns = {"BNS", "NSBH"} & (set(ev_kind) if None in used_kinds else used_kinds)
             if ns:
                 notes.append(
                     "spectrum: for neutron-star binaries the ISCO cut-off ignores tidal "

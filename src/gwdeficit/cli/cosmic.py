@@ -21,8 +21,9 @@ from gwdeficit.cli._common import (
 FileArg = Annotated[
     Path | None,
     typer.Argument(
-        help="Remnants table (Parquet from 'gwdeficit remnant'); default: the working folder's "
-        "remnants.parquet.",
+        help="Remnants table (Parquet from 'gwdeficit remnant'), or a catalogue whose remnants "
+        "are then computed first; default: the working folder's remnants.parquet, else its "
+        "catalogue.parquet.",
         show_default=False,
     ),
 ]
@@ -170,6 +171,57 @@ def _print_summary(summary: dict[str, Any], out: Path, figure: Path | None) -> N
     )
 
 
+def _load_remnants(
+    file: Path | None, folder: Path, seed: int, force: bool, outputs: tuple[Path | None, ...]
+) -> tuple[Path, Any]:
+    """The remnants table: FILE, else <workdir>/remnants.parquet, else computed from the
+    catalogue (FILE, or <workdir>/catalogue.parquet) and written to <workdir>/remnants.parquet.
+    Checks that every output may be written before any work is done."""
+    import warnings
+
+    from gwdeficit import workdir as wd
+    from gwdeficit.schema import InputFileError, SchemaError
+
+    if file is not None:
+        path = Path(file)
+    elif (folder / wd.REMNANTS_FILE).exists():
+        path = folder / wd.REMNANTS_FILE
+    else:
+        path = folder / wd.CATALOGUE_FILE
+    if not path.exists():
+        hint = (
+            ""
+            if file is not None
+            else " (run 'gwdeficit ingest' and 'gwdeficit remnant', or give FILE)"
+        )
+        raise InputFileError(f"{path}: no such file{hint}")
+    for o in outputs:
+        if o is not None:
+            wd.check_writable(o, force, inputs=(path,))
+    df = wd.read_parquet(path)
+    if "kind" not in df.columns:
+        raise SchemaError(f"{path}: no 'kind' column; not a catalogue or remnants table")
+    if "deficit_msun" in df.columns:
+        return path, df
+    # A catalogue: compute the remnants first, as 'gwdeficit remnant' would.
+    from gwdeficit.fits.registry import FitRangeWarning
+    from gwdeficit.remnant import compute_remnants
+
+    rem_out = folder / wd.REMNANTS_FILE
+    wd.check_writable(rem_out, force, inputs=(path,))
+    err(f"{path} is a catalogue: computing its remnants first ({rem_out})")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FitRangeWarning)
+        rem = compute_remnants(
+            df, seed=seed, source=str(path), inputs={str(path): wd.file_sha256(path)}
+        )
+    for w in caught:
+        if issubclass(w.category, FitRangeWarning):
+            err(f"warning: {w.message}")
+    wd.write_parquet(rem, rem_out, rem.attrs, force=force, inputs=(path,))
+    return rem_out, wd.read_parquet(rem_out)
+
+
 @handles_errors
 def cosmic(
     file: FileArg = None,
@@ -199,24 +251,14 @@ def cosmic(
     """
     from gwdeficit import workdir as wd
     from gwdeficit.cosmic import cosmic_budget
-    from gwdeficit.schema import InputFileError
 
     folder = wd.resolve_workdir(workdir)
-    path = Path(file) if file is not None else folder / wd.REMNANTS_FILE
-    if not path.exists():
-        hint = "" if file is not None else " (run 'gwdeficit remnant' first, or give FILE)"
-        raise InputFileError(f"{path}: no such file{hint}")
     out = folder / wd.COSMIC_FILE
     fig_path = folder / wd.FIGURES_DIR / "cosmic_mass_loss.png"
-    wd.check_writable(out, force, inputs=(path,))
-    if figure:
-        wd.check_writable(fig_path, force)
-    remnants = wd.read_parquet(path)
-    if "kind" not in remnants.columns:
-        from gwdeficit.schema import SchemaError
+    path, remnants = _load_remnants(file, folder, seed, force, (out, fig_path if figure else None))
+    from gwdeficit.resample import event_kinds
 
-        raise SchemaError(f"{path}: no 'kind' column; is this a remnants table?")
-    kinds = sorted(set(remnants["kind"].astype(str)))
+    kinds = sorted(set(event_kinds(remnants).astype(str)))  # each event in its majority kind
     models = _rate_models(rate, rate_kind, rate_unit, evolution, kappa, rate_z, kinds)
     result = cosmic_budget(
         remnants,
