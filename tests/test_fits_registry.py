@@ -1,0 +1,93 @@
+"""The fit registry: names, metadata, selection rules, kernels agree with public functions."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pytest
+
+from gwdeficit.fits import registry
+from gwdeficit.schema import PER_FIT_SEPARATOR, OptionError
+
+
+def test_names_are_snake_case_author_year_and_unique():
+    names = [f.name for f in registry.REGISTRY]
+    assert len(set(names)) == len(names)
+    for n in names:
+        assert re.fullmatch(r"[a-z]+(_[a-z]+)*_(19|20)\d\d", n), n
+
+
+def test_every_quantity_has_an_nr_fit_and_enough_estimates():
+    by = {q: [f for f in registry.REGISTRY if f.quantity == q] for q in registry.QUANTITIES}
+    assert len(by["final_spin"]) >= 3 and len(by["final_mass"]) >= 2 and by["recoil"]
+    for fits in by.values():
+        assert any(f.in_default for f in fits)
+    for f in registry.REGISTRY:
+        assert f.in_default == bool(f.calibrated), "parameter-free fits stay out of the default"
+
+
+def test_metadata_is_json_and_has_the_agreed_keys():
+    for f in registry.REGISTRY:
+        meta = json.loads(json.dumps(f.metadata()))
+        assert {"name", "quantity", "citation", "calibrated", "in_default"} <= set(meta)
+        assert meta["quantity"] in registry.QUANTITIES
+        assert all(c.endswith(PER_FIT_SEPARATOR + f.name) for c in meta["columns"])
+        assert re.search(r"(19|20)\d\d", meta["citation"])
+
+
+def test_final_mass_fits_give_mass_and_energy_columns():
+    f = registry.get_fit("barausse_morozova_rezzolla_2012")
+    assert f.columns == (
+        "mf_msun__barausse_morozova_rezzolla_2012",
+        "erad_msun__barausse_morozova_rezzolla_2012",
+    )
+
+
+def test_selection_rules():
+    assert registry.select_fits(None) == registry.REGISTRY
+    with pytest.raises(OptionError, match="not known"):
+        registry.select_fits(["no_such_fit_2000"])
+    with pytest.raises(OptionError, match="twice"):
+        registry.select_fits(["lousto_2012", "lousto_2012"])
+    with pytest.raises(OptionError, match="no NR-calibrated final_mass"):
+        registry.select_fits(["barausse_rezzolla_2009", "lousto_2012"])
+    chosen = registry.select_fits(
+        ["lousto_2012", "barausse_morozova_rezzolla_2012", "barausse_rezzolla_2009"]
+    )
+    assert [f.name for f in chosen] == [
+        "barausse_rezzolla_2009",
+        "barausse_morozova_rezzolla_2012",
+        "lousto_2012",
+    ]
+
+
+def test_kernels_agree_with_public_functions():
+    rng = np.random.default_rng(2)
+    n = 1000
+    q = rng.uniform(0.05, 1, n)
+    c1, c2 = rng.uniform(0, 1, n), rng.uniform(0, 1, n)
+    t1, t2 = rng.uniform(0, np.pi, n), rng.uniform(0, np.pi, n)
+    p12, ph = rng.uniform(0, 2 * np.pi, n), rng.uniform(0, 2 * np.pi, n)
+    comp = registry.components(q, c1, c2, np.cos(t1), np.cos(t2), np.cos(p12), np.cos(ph))
+    for f in registry.REGISTRY:
+        args = {"final_spin": (p12,), "final_mass": (), "recoil": (p12, ph)}[f.quantity]
+        np.testing.assert_allclose(
+            f.kernel(comp),
+            f.function(q, c1, c2, t1, t2, *args),
+            rtol=1e-9,
+            atol=1e-12,
+            err_msg=f.name,
+        )
+
+
+def test_in_range():
+    f = registry.get_fit("barausse_rezzolla_2009")
+    ok = f.in_range(
+        np.array([0.5, 0.1, 0.5]), np.array([0.5, 0.5, 0.95]), np.array([0.1, 0.1, 0.1])
+    )
+    assert ok.tolist() == [True, False, False]
+    free = registry.get_fit("buonanno_kidder_lehner_2008")
+    assert free.in_range(np.array([1e-4]), np.array([1.0]), np.array([1.0])).all()
+    assert "parameter-free" in free.describe_range()
