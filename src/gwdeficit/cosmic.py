@@ -743,6 +743,8 @@ def cosmic_budget(
     stat_sources = [s for s in sources if s != "rate"]
     warnings: list[str] = []
     notes: list[str] = []
+    if cosmology is None and remnants.attrs.get(META_COSMOLOGY) is None:
+        notes.append("the input names no cosmology; Planck18 (astropy) is used")
     frame = _with_spectrum_columns(remnants)
     columns = [*MEAN_COLUMNS, INSPIRAL_COLUMN] if spectrum else list(MEAN_COLUMNS)
     prepared = [*columns, _MCHIRP, _FCUT] if spectrum else columns
