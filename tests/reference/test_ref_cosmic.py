@@ -243,3 +243,9 @@ def test_bbh_background_at_25hz_near_published_estimate():
     )[0]
     assert 0.2e-9 < om < 3.8e-9
     assert 0.5 < om / 1.1e-9 < 2.0
+
+
+def test_solar_time_constant_matches_astropy():
+    # G Msun / c^3 = 4.925490947 us (IAU 2015 nominal GM_sun, astropy constants).
+    ref = float((const.GM_sun / const.c**3).to_value(u.s))
+    assert cosmic.T_SUN_S == pytest.approx(ref, rel=1e-12)
