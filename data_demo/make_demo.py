@@ -138,23 +138,27 @@ def make_campaign(rng: np.random.Generator) -> pd.DataFrame:
         q_s = np.clip(q_s, 0.06, 1.0)
         dl_centre = dl[i] * np.exp(0.2 * rng.normal())
         dl_s = dl_centre * np.exp(0.25 * rng.normal(size=n))
-        a1_s = np.minimum(_beta_around(rng, a1_true[i], 3.0, n), 0.99)
-        a2_s = np.minimum(_beta_around(rng, a2_true[i], 2.0, n), 0.99)
+        a1_s = np.minimum(_beta_around(rng, a1_true[i], 5.0, n), 0.99)
+        a2_s = np.minimum(_beta_around(rng, a2_true[i], 4.0, n), 0.99)
         c1 = 2.0 * _beta_around(rng, 0.5 * (cos1[i] + 1.0), 3.0, n) - 1.0
         c2 = 2.0 * _beta_around(rng, 0.5 * (cos2[i] + 1.0), 2.0, n) - 1.0
+        # A black-hole campaign: drop the few samples whose source-frame m2 would be < 3.5 Msun.
+        mc_src_s = mc_s / (1.0 + np.interp(dl_s, dlgrid, zgrid))
+        m2_src_s = q_s * mc_src_s * (1.0 + q_s) ** 0.2 / q_s**0.6
+        keep = m2_src_s >= 3.5
         blocks.append(
             pd.DataFrame(
                 {
                     "event": f"DEMO-B{i + 1:02d}",
-                    "sample": np.arange(n),
-                    "mchirp_det [Msun]": mc_s,
-                    "q": q_s,
-                    "dL [Gpc]": dl_s,
-                    "a1": a1_s,
-                    "a2": a2_s,
-                    "tilt1 [deg]": np.degrees(np.arccos(c1)),
-                    "tilt2 [deg]": np.degrees(np.arccos(c2)),
-                    "phi12 [deg]": rng.uniform(0.0, 360.0, n),
+                    "sample": np.arange(int(keep.sum())),
+                    "mchirp_det [Msun]": mc_s[keep],
+                    "q": q_s[keep],
+                    "dL [Gpc]": dl_s[keep],
+                    "a1": a1_s[keep],
+                    "a2": a2_s[keep],
+                    "tilt1 [deg]": np.degrees(np.arccos(c1[keep])),
+                    "tilt2 [deg]": np.degrees(np.arccos(c2[keep])),
+                    "phi12 [deg]": rng.uniform(0.0, 360.0, n)[keep],
                 }
             )
         )

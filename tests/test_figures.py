@@ -165,6 +165,20 @@ def test_kick_fraction_uses_row_weights_within_an_event():
     assert pf.notes["escaping_fraction"]["x"] == pytest.approx(0.75)
 
 
+def test_kick_fraction_weighs_single_row_binaries_by_their_weight():
+    # Population binaries (one row each) count by weight, as in the rate stage's bootstrap
+    # (gwdeficit.resample); an event with posterior samples counts once.
+    rem = pd.DataFrame(
+        {
+            "event": ["p1", "p2", "E", "E"],
+            "weight": [3.0, 1.0, 1.0, 1.0],
+            "vkick_kms": [100.0, 10.0, 100.0, 10.0],
+        }
+    )
+    pf = figures.kick_figure(rem, escape_speeds=(("x", 50.0),))
+    assert pf.notes["escaping_fraction"]["x"] == pytest.approx((3.0 + 0.5) / 5.0)
+
+
 def test_budget_bars_equal_the_summary():
     rates = _rates()
     pf = figures.budget_figure(rates)
@@ -175,14 +189,29 @@ def test_budget_bars_equal_the_summary():
         rows = pf.data[pf.data.volume == volume]
         assert list(rows.kind) == ["BBH", "BNS", "all"]  # display order, not table order
         ref = want[want.volume == volume].set_index("kind").loc[list(rows.kind)]
+        # Linear panels are drawn in units of 10^k (k in the label and in the notes).
+        k = pf.notes["axis_power_of_ten"][f"{volume} [{ref['unit'].iloc[0]}]"]
+        assert k == {"mw": -9, "gpc3": 3}[volume]
+        assert f"$10^{{{k}}}$" in ax.get_xlabel() and "yr" in ax.get_xlabel()
         bars90, bars68 = ax.containers
-        seg90 = np.array([s[:, 0] for s in bars90.lines[2][0].get_segments()])
-        seg68 = np.array([s[:, 0] for s in bars68.lines[2][0].get_segments()])
+        seg90 = np.array([s[:, 0] for s in bars90.lines[2][0].get_segments()]) * 10.0**k
+        seg68 = np.array([s[:, 0] for s in bars68.lines[2][0].get_segments()]) * 10.0**k
         np.testing.assert_allclose(seg90, ref[["lo90", "hi90"]].to_numpy())
         np.testing.assert_allclose(seg68, ref[["lo68", "hi68"]].to_numpy())
-        np.testing.assert_allclose(ax.lines[0].get_xdata(), ref["median"])
+        np.testing.assert_allclose(ax.lines[0].get_xdata() * 10.0**k, ref["median"])
         assert [t.get_text() for t in ax.get_yticklabels()] == list(rows.kind)
-        assert "yr" in ax.get_xlabel()
+
+
+def test_budget_panel_spanning_decades_is_logarithmic_and_unscaled():
+    rates = _rates()
+    sel = (rates.volume == "mw") & (rates.kind == "BNS")
+    rates.loc[sel, ["lo90", "hi90"]] = [1e-9, 1e-4]
+    pf = figures.budget_figure(rates)
+    ax = pf.figure.axes[0]
+    assert ax.get_xscale() == "log"
+    assert pf.notes["axis_power_of_ten"]["mw [solMass / yr]"] == 0
+    seg90 = np.array([s[:, 0] for s in ax.containers[0].lines[2][0].get_segments()])
+    np.testing.assert_allclose(seg90[1], [1e-9, 1e-4])
 
 
 def test_error_budget_bars_equal_the_shares():

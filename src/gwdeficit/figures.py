@@ -179,16 +179,15 @@ def unit_label(unit: str) -> str:
 
 
 def _volume_label(volume: str) -> str:
-    v = str(volume)
-    if v == "mw":
-        return "per Milky-Way-equivalent galaxy"
-    if v == "gpc3":
-        return "per Gpc$^3$"
-    if v.startswith("cosmic"):
-        return f"cosmic history ({v})" if ":" in v else "cosmic history"
-    if v.startswith("sphere:"):
-        return f"sphere of radius {v.split(':', 1)[1]} Mpc"
-    return v
+    """The rate stage's description of a volume spec (:attr:`gwdeficit.volumes.Volume.label`)."""
+    from gwdeficit.schema import GwdeficitError
+    from gwdeficit.volumes import parse_volume
+
+    try:
+        label = parse_volume(str(volume)).label
+    except GwdeficitError:
+        return str(volume)
+    return label.replace("^3", "$^3$")
 
 
 def _kind_rank(kind: str) -> int:
@@ -196,10 +195,12 @@ def _kind_rank(kind: str) -> int:
 
 
 def _event_fractions(df: pd.DataFrame) -> Any:
-    """Per-row plotting weights: each event counts once, rows within it by their ``weight``.
+    """Per-row plotting weights, summing to 1, with the rate stage's population weighting.
 
-    Within an event the rows are normalised to sum to 1 / n_events; without an ``event`` column
-    every row is its own event; without ``weight`` all rows weigh the same.
+    As in :mod:`gwdeficit.resample`: an event's weight W_e is 1 when it has several rows
+    (posterior samples: each event counts once) and the row's ``weight`` when it has a single
+    row (population binaries, point values); within an event rows count by their ``weight``.
+    Without an ``event`` column every row is its own event; without ``weight`` all weigh 1.
     """
     import numpy as np
 
@@ -208,14 +209,17 @@ def _event_fractions(df: pd.DataFrame) -> Any:
         if "weight" in df.columns
         else np.ones(len(df), dtype=np.float64)
     )
-    if "event" not in df.columns:
-        return np.full(len(df), 1.0 / max(len(df), 1))
-    codes, uniques = _factorize(df["event"])
+    if "event" in df.columns:
+        codes, uniques = _factorize(df["event"])
+    else:
+        codes, uniques = np.arange(len(df)), np.arange(len(df))
     totals = np.bincount(codes, weights=w, minlength=len(uniques))
+    counts = np.bincount(codes, minlength=len(uniques))
+    event_weight = np.where(counts > 1, 1.0, totals)
     with np.errstate(invalid="ignore", divide="ignore"):
-        frac = np.where(totals[codes] > 0, w / totals[codes], 0.0)
-    n_ev = int(np.count_nonzero(totals > 0))
-    return frac / max(n_ev, 1)
+        frac = np.where(totals[codes] > 0, w / totals[codes], 0.0) * event_weight[codes]
+    total = frac.sum()
+    return frac / total if total > 0 else frac
 
 
 def _factorize(values: pd.Series) -> tuple[Any, Any]:
@@ -335,8 +339,9 @@ def kick_figure(
 ) -> PlottedFigure:
     """Distribution of recoil speeds (``vkick_kms``) with chosen escape speeds marked.
 
-    Histogram in logarithmic speed bins; each event counts once (its rows share the event's unit
-    weight in proportion to ``weight``), so the bar heights are fractions of events. For every
+    Histogram in logarithmic speed bins, weighted like the rate stage's population means (each
+    event with posterior samples counts once, single-row binaries by their ``weight``; see
+    :func:`_event_fractions`), so the bar heights are fractions of mergers. For every
     escape speed the fraction of events whose remnant would escape (kick above the speed) is
     drawn beside its line and returned in ``notes["escaping_fraction"]``.
     """
@@ -384,7 +389,7 @@ def kick_figure(
                 transform=ax.get_xaxis_transform(),
             )
         ax.set_xlabel(r"recoil speed $v_\mathrm{kick}$ [km s$^{-1}$]")
-        ax.set_ylabel("fraction of events per bin")
+        ax.set_ylabel("fraction of mergers per bin")
         ax.set_ylim(0.0, ymax * (1.15 + 0.2 * len(escape_speeds)))
     notes = {
         "rows": len(remnants),
@@ -421,7 +426,9 @@ def budget_figure(rates: pd.DataFrame, quantity: str = "deficit_rate") -> Plotte
     """The mass-loss budget per volume: median with 68% (thick) and 90% (thin) intervals.
 
     One panel per volume (and unit) of the rate summary, one line per kind (BBH, NSBH, BNS,
-    all). The panel's axis is logarithmic when its 90% intervals span more than two decades.
+    all). The panel's axis is logarithmic when its 90% intervals span more than two decades;
+    otherwise large or small numbers are drawn in units of a power of ten (a multiple of 3)
+    written into the axis label and returned in ``notes["axis_power_of_ten"]``.
     """
     import numpy as np
 
@@ -431,21 +438,29 @@ def budget_figure(rates: pd.DataFrame, quantity: str = "deficit_rate") -> Plotte
         dict.fromkeys(zip(data["volume"].astype(str), data["unit"].astype(str), strict=True))
     )
     n_lines = len(data)
+    exponents: dict[str, int] = {}
     with _style():
         fig = _new_figure(0.55 + 0.62 * len(panels) + 0.16 * n_lines)
         axes = fig.subplots(len(panels), 1, squeeze=False)[:, 0]
         for ax, (volume, unit) in zip(axes, panels, strict=True):
             p = data.loc[(data["volume"].astype(str) == volume) & (data["unit"] == unit)]
             y = np.arange(len(p))[::-1].astype(np.float64)
-            med = p["median"].to_numpy(dtype=np.float64)
+            lo90 = p["lo90"].to_numpy(dtype=np.float64)
+            hi90 = p["hi90"].to_numpy(dtype=np.float64)
+            log_axis = bool(np.all(lo90 > 0) and np.max(hi90) / np.min(lo90) > 100.0)
+            # Linear axes show numbers near 1: the panel's power of ten goes into the unit.
+            exponent = 0 if log_axis else _panel_exponent(hi90)
+            scale = 10.0**-exponent
+            exponents[f"{volume} [{unit}]"] = exponent
+            med = p["median"].to_numpy(dtype=np.float64) * scale
             for lo, hi, width, label in (
                 ("lo90", "hi90", 0.8, "90%"),
                 ("lo68", "hi68", 2.4, "68%"),
             ):
                 err = np.vstack(
                     [
-                        med - p[lo].to_numpy(dtype=np.float64),
-                        p[hi].to_numpy(dtype=np.float64) - med,
+                        med - p[lo].to_numpy(dtype=np.float64) * scale,
+                        p[hi].to_numpy(dtype=np.float64) * scale - med,
                     ]
                 )
                 ax.errorbar(
@@ -461,17 +476,30 @@ def budget_figure(rates: pd.DataFrame, quantity: str = "deficit_rate") -> Plotte
             ax.plot(med, y, "o", ms=3.0, color=OKABE_ITO[5], label="median", zorder=3)
             ax.set_yticks(y, p["kind"].astype(str).tolist())
             ax.set_ylim(-0.6, len(p) - 0.4)
-            lo90 = p["lo90"].to_numpy(dtype=np.float64)
-            hi90 = p["hi90"].to_numpy(dtype=np.float64)
-            if np.all(lo90 > 0) and np.max(hi90) / np.min(lo90) > 100.0:
+            if log_axis:
                 ax.set_xscale("log")
             ax.set_title(_volume_label(volume), loc="left")
             qlabel = _QUANTITY_LABELS.get(quantity, quantity.replace("_", " "))
-            ax.set_xlabel(f"{qlabel} [{unit_label(unit)}]")
+            power = f"$10^{{{exponent}}}$ " if exponent else ""
+            ax.set_xlabel(f"{qlabel} [{power}{unit_label(unit)}]")
         handles, labels = axes[0].get_legend_handles_labels()
         fig.legend(handles, labels, loc="outside upper center", ncols=3)
-    notes = {"quantity": quantity, "panels": [f"{v} [{u}]" for v, u in panels]}
+    notes = {
+        "quantity": quantity,
+        "panels": [f"{v} [{u}]" for v, u in panels],
+        "axis_power_of_ten": exponents,
+    }
     return PlottedFigure("budget", fig, data, notes)
+
+
+def _panel_exponent(values: Any) -> int:
+    """Power of ten (a multiple of 3) that brings a panel's largest number into [0.1, 1000)."""
+    import numpy as np
+
+    top = float(np.nanmax(np.abs(values))) if len(values) else 0.0
+    if not (np.isfinite(top) and top > 0) or 0.1 <= top < 1000.0:
+        return 0
+    return int(3 * np.floor(np.log10(top) / 3))
 
 
 def share_columns(rates: pd.DataFrame) -> list[str]:
@@ -485,8 +513,10 @@ def error_budget_figure(rates: pd.DataFrame, quantity: str = "deficit_rate") -> 
     """Split of the error budget by source, one stacked bar per volume and kind.
 
     Draws the ``share_<source>`` columns of the rate summary (catalogue size, posterior samples,
-    rate density, fit spread) as they are stored; the bars' total is whatever the shares add up
-    to (the summary's own normalisation is not changed).
+    rate density, fit spread) as they are stored: in :mod:`gwdeficit.budget` a share is the
+    variance with only that source switched on over the variance with all on. The bars' total is
+    whatever the shares add up to (about one for independent, small effects; a dotted line marks
+    one); the summary's normalisation is not changed.
     """
     import numpy as np
 
@@ -514,7 +544,8 @@ def error_budget_figure(rates: pd.DataFrame, quantity: str = "deficit_rate") -> 
             )
             left = left + width
         ax.set_yticks(y, labels)
-        ax.set_xlabel("share of the error budget")
+        ax.axvline(1.0, color=GREY, linewidth=0.5, linestyle=":")
+        ax.set_xlabel("share of the variance, by error source")
         ax.set_xlim(0.0, max(1.0, float(left.max()) if len(left) else 1.0))
         fig.legend(loc="outside upper center", ncols=min(len(shares), 4))
     notes = {"quantity": quantity, "sources": [c.removeprefix("share_") for c in shares]}
