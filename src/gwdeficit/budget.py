@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Collection, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -192,6 +192,7 @@ def compute_budget(
     galaxy_density_mpc3: float = MWEG_DENSITY_MPC3,
     stellar_density_msun_mpc3: float = STELLAR_DENSITY_MSUN_MPC3,
     sources: Collection[str] = ERROR_SOURCES,
+    default_rate_z: float | None = None,
     keep_draws: bool = False,
     progress: Callable[[int, int], None] | None = None,
     source: str = "remnants table",
@@ -206,7 +207,9 @@ def compute_budget(
     rate: one rate for the whole table (its rows are then kind ``all``, or the table's only
       kind). rates_by_kind: separate rates per kind; kinds without a rate are left out and said
       so. Neither: the defaults of :data:`gwdeficit.rates.DEFAULT_RATES` per kind present.
-      Text rates are parsed with :func:`gwdeficit.rates.parse_rate` and ``evolution``.
+      Text rates are parsed with :func:`gwdeficit.rates.parse_rate` and ``evolution``; the
+      defaults take the shape of ``evolution`` at their own reference redshift, or at
+      ``default_rate_z`` when given.
     escape_speeds_kms: add the retained fraction below each escape speed.
     selection: population reweighting, one of :data:`gwdeficit.resample.SELECTIONS`.
     n_draws, seed: bootstrap size and the seed of the run's single random generator.
@@ -269,6 +272,11 @@ def compute_budget(
         else:
             defaults_used = True
             models = {k: default_rate(k, evolution) for k in present if k in DEFAULT_RATES}
+            if default_rate_z is not None:
+                models = {
+                    k: m.with_evolution(replace(m.evolution, z_ref=float(default_rate_z)))
+                    for k, m in models.items()
+                }
             notes.append("no rate given: default rate ranges per kind from " + DEFAULT_RATES_SOURCE)
         for k in present:
             if k in models:

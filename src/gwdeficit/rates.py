@@ -346,9 +346,8 @@ def _read_numeric_table(path: Path):
             header = None
         except ValueError:
             header = 0
-        df = pd.read_csv(
-            path, sep=None, engine="python", comment="#", header=header, skip_blank_lines=True
-        )
+        sep = next((d for d in (",", "\t", ";") if d in first), r"\s+")
+        df = pd.read_csv(path, sep=sep, comment="#", header=header, skip_blank_lines=True)
         if header is None:
             df.columns = [str(c) for c in df.columns]
         return df
