@@ -64,6 +64,9 @@ app.command("remnant")(_remnant.remnant)
 from gwdeficit.cli import fits as _fits  # noqa: E402
 
 app.command("fits")(_fits.fits)
+from gwdeficit.cli import rate as _rate  # noqa: E402
+
+app.command("rate")(_rate.rate)
 
 
 def main() -> None:
