@@ -154,8 +154,9 @@ def redshift_grid(zmax: float, n: int = ZGRID_POINTS) -> NDArray[np.float64]:
 def abs_dt_dz(z: ArrayLike, cosmology: FLRW) -> NDArray[np.float64]:
     """``|dt/dz| = 1 / ((1+z) H(z))`` in years (source-frame cosmic time per unit redshift).
 
-    Standard FLRW relation (e.g. Hogg 1999, arXiv:astro-ph/9905116, eq. 30 integrand), with
-    ``H(z) = H0 E(z)`` from the astropy cosmology (any redshift it supports).
+    Standard FLRW relation (Hogg 1999, arXiv:astro-ph/9905116, the lookback-time integrand,
+    eq. 30 from memory), with ``H(z) = H0 E(z)`` from the astropy cosmology (any redshift it
+    supports).
     """
     z = np.asarray(z, dtype=np.float64)
     hubble_time_yr = float(cosmology.hubble_time.to_value("yr"))
