@@ -377,12 +377,13 @@ def test_cli_default_rates_per_kind(workdir):
     ("args", "needle"),
     [
         (["--rate", "fast"], "rate"),
-        (["--rate", "20", "--rate-kind", "BBH=20"], "not both"),
+        (["--rate", "20", "--rate-kind", "BBH=20"], "give one of"),
+        (["--rate", "20", "--kappa", "2"], "kappa"),
         (["--evolution", "sudden"], "evolution"),
         (["--zmax", "-2"], "zmax"),
         (["--draws", "0"], "draws"),
         (["--rate", "20", "--rate-unit", "furlong"], "unit"),
-        (["--rate-unit", "Mpc-3 Myr-1"], "applies to --rate"),
+        (["--rate-unit", "Mpc-3 Myr-1"], "applies to a given rate"),
     ],
 )
 def test_cli_bad_options_exit_2(workdir, args, needle):
@@ -390,6 +391,21 @@ def test_cli_bad_options_exit_2(workdir, args, needle):
     r = _run(*args)
     assert r.exit_code == 2, r.output
     assert needle in r.output
+
+
+def test_cli_rate_samples_and_powerlaw(workdir, tmp_path):
+    import json
+
+    _write_remnants(workdir, _remnants(n_events=5))
+    samples = tmp_path / "rate.csv"
+    values = np.linspace(10.0, 30.0, 41)
+    samples.write_text("draw,rate\n" + "".join(f"{i},{v}\n" for i, v in enumerate(values)))
+    args = ["--rate-samples", f"{samples}:rate", "--evolution", "powerlaw", "--kappa", "2.7"]
+    r = _run(*args, "--draws", "100", "--no-figure", "--json")
+    assert r.exit_code == 0, r.output
+    model = json.loads(r.stdout)["kinds"]["BBH"]["rate_model"]
+    assert model["form"] == "samples" and model["evolution"] == "powerlaw"
+    assert model["kappa"] == 2.7
 
 
 def test_cli_missing_input_exit_2(workdir):
@@ -430,3 +446,26 @@ def test_cli_computes_remnants_from_a_catalogue(workdir):
     assert len(rem) == n and "erad_msun" in rem.columns
     stages = [p["stage"] for p in read_parquet(workdir / "cosmic.parquet").attrs[META_PROVENANCE]]
     assert stages[0] == "ingest" and stages[-1] == "cosmic" and len(stages) == 3
+
+
+def test_figure_draws_the_history_rows():
+    from gwdeficit.figures_cosmic import cosmic_mass_loss_figure
+
+    df = pd.concat([_remnants(), _remnants(kind="BNS", prefix="n", seed=1)], ignore_index=True)
+    res = _budget(df, {"BBH": _rate("25 +10 -8"), "BNS": _rate("300 +200 -150")}, spectrum=False)
+    plotted = cosmic_mass_loss_figure(res.table)
+    drawn = plotted.data
+    # all + BBH + BNS radiated, BNS ejected; "all" ejected repeats BNS and is not drawn.
+    pairs = set(zip(drawn["kind"], drawn["quantity"], strict=True))
+    assert pairs == {
+        ("all", "erad_density_before"),
+        ("BBH", "erad_density_before"),
+        ("BNS", "erad_density_before"),
+        ("BNS", "ejected_density_before"),
+    }
+    hist = _get(res.table, "erad_density_before", "history", "BBH")
+    mine = drawn[(drawn["kind"] == "BBH") & (drawn["quantity"] == "erad_density_before")]
+    expect = hist[hist["median"] > 0].sort_values("lookback_gyr")["median"].to_numpy()
+    np.testing.assert_array_equal(mine["median"].to_numpy(), expect)
+    with pytest.raises(SchemaError):
+        cosmic_mass_loss_figure(res.table.drop(columns=["lookback_gyr"]))

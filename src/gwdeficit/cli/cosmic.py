@@ -14,9 +14,9 @@ from gwdeficit.cli._common import (
     WorkdirOpt,
     err,
     handles_errors,
-    parse_pairs,
     print_json,
 )
+from gwdeficit.cli.rate import KappaOpt, RateKindOpt, RateOpt, RateSamplesOpt, RateUnitOpt, RateZOpt
 
 FileArg = Annotated[
     Path | None,
@@ -27,36 +27,12 @@ FileArg = Annotated[
         show_default=False,
     ),
 ]
-RateOpt = Annotated[
-    str | None,
-    typer.Option(
-        "--rate",
-        help="Rate density of the whole table: '24', '24 +14 -9' (90% bounds), '17.9..44' "
-        "(90% range) or 'samples:FILE[:COLUMN]'. Default: a published rate per kind.",
-    ),
-]
-RateKindOpt = Annotated[
-    list[str] | None,
-    typer.Option(
-        "--rate-kind",
-        help="Rate of one kind, KIND=SPEC (repeatable), e.g. --rate-kind BNS='320 +490 -240'.",
-    ),
-]
-RateUnitOpt = Annotated[
-    str, typer.Option("--rate-unit", help="Unit of the rate numbers (astropy syntax).")
-]
 EvolutionOpt = Annotated[
     str,
-    typer.Option("--evolution", help="Redshift evolution: none, powerlaw or madau-dickinson."),
-]
-KappaOpt = Annotated[
-    float, typer.Option("--kappa", help="Index of the powerlaw evolution (1+z)^kappa.")
-]
-RateZOpt = Annotated[
-    float | None,
     typer.Option(
-        "--rate-z",
-        help="Redshift at which the rate is quoted (default 0; the built-in BBH default: 0.2).",
+        "--evolution",
+        help="Redshift evolution: none, powerlaw or madau-dickinson (the default here: a "
+        "constant rate over cosmic history is rarely meant).",
     ),
 ]
 ZmaxOpt = Annotated[
@@ -85,39 +61,24 @@ FigureOpt = Annotated[
 ]
 
 
-def _rate_models(
-    rate: str | None,
-    rate_kind: list[str] | None,
-    unit: str,
-    evolution: str,
-    kappa: float,
-    rate_z: float | None,
-    kinds: list[str],
-) -> Any:
-    """One rate model for the table (``--rate``), or one per kind (``--rate-kind`` / defaults)."""
-    from gwdeficit.rates import (
-        RATE_UNIT,
-        RateEvolution,
-        default_rate,
-        parse_kind_rates,
-        parse_rate,
-    )
-    from gwdeficit.schema import OptionError
+def _rate_models(rate_args: dict[str, Any], kinds: list[str]) -> Any:
+    """The rate model(s) for :func:`gwdeficit.cosmic.cosmic_budget` from the rate options as
+    parsed by the rate command (``cli.rate._rate_arguments``): one model for the whole table,
+    or one per kind (given, or the published defaults of the kinds present)."""
+    from dataclasses import replace
 
-    evo = RateEvolution(evolution, kappa, 0.0 if rate_z is None else rate_z)
-    per_kind = parse_pairs(rate_kind, "--rate-kind")
-    if rate is not None and per_kind:
-        raise OptionError("give either --rate (whole table) or --rate-kind (per kind), not both")
-    if rate is None and not per_kind and unit != RATE_UNIT:
-        raise OptionError(f"--rate-unit {unit!r} applies to --rate or --rate-kind; none given")
-    if rate is not None:
-        return parse_rate(rate, unit=unit, evolution=evo)
-    if per_kind:
-        return parse_kind_rates(per_kind, unit=unit, evolution=evo)
-    models = {}
-    for k in kinds:
-        m = default_rate(k, RateEvolution(evolution, kappa, 0.0))
-        models[k] = m if rate_z is None else m.with_evolution(evo)
+    from gwdeficit.rates import DEFAULT_RATES, default_rate
+
+    if "rate" in rate_args:
+        return rate_args["rate"]
+    if "rates_by_kind" in rate_args:
+        return rate_args["rates_by_kind"]
+    evo, z_ref = rate_args["evolution"], rate_args.get("default_rate_z")
+    models = {k: default_rate(k, evo) for k in kinds if k in DEFAULT_RATES}
+    if z_ref is not None:
+        models = {
+            k: m.with_evolution(replace(m.evolution, z_ref=float(z_ref))) for k, m in models.items()
+        }
     return models
 
 
@@ -226,10 +187,11 @@ def _load_remnants(
 def cosmic(
     file: FileArg = None,
     rate: RateOpt = None,
-    rate_kind: RateKindOpt = None,
     rate_unit: RateUnitOpt = "Gpc-3 yr-1",
+    rate_samples: RateSamplesOpt = None,
+    rate_kind: RateKindOpt = None,
     evolution: EvolutionOpt = "madau-dickinson",
-    kappa: KappaOpt = 0.0,
+    kappa: KappaOpt = None,
     rate_z: RateZOpt = None,
     zmax: ZmaxOpt = 8.0,
     draws: DrawsOpt = 2000,
@@ -250,16 +212,17 @@ def cosmic(
     cumulative mass loss against lookback time, and prints the totals.
     """
     from gwdeficit import workdir as wd
+    from gwdeficit.cli.rate import _rate_arguments
     from gwdeficit.cosmic import cosmic_budget
+    from gwdeficit.resample import event_kinds
 
+    rate_args = _rate_arguments(rate, rate_samples, rate_kind, rate_unit, evolution, kappa, rate_z)
     folder = wd.resolve_workdir(workdir)
     out = folder / wd.COSMIC_FILE
     fig_path = folder / wd.FIGURES_DIR / "cosmic_mass_loss.png"
     path, remnants = _load_remnants(file, folder, seed, force, (out, fig_path if figure else None))
-    from gwdeficit.resample import event_kinds
-
     kinds = sorted(set(event_kinds(remnants).astype(str)))  # each event in its majority kind
-    models = _rate_models(rate, rate_kind, rate_unit, evolution, kappa, rate_z, kinds)
+    models = _rate_models(rate_args, kinds)
     result = cosmic_budget(
         remnants,
         models,
