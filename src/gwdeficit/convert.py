@@ -94,15 +94,16 @@ def masses_from_total_q(mt: ArrayLike, q: ArrayLike) -> tuple[FloatArray, FloatA
 def masses_from_total_eta(mt: ArrayLike, eta: ArrayLike) -> tuple[FloatArray, FloatArray]:
     """Component masses (m1 >= m2) from total mass M and symmetric mass ratio eta in (0, 1/4].
 
-    m1,2 = M (1 +- sqrt(1 - 4 eta)) / 2, inverting :func:`symmetric_mass_ratio`. NaN where eta
-    is outside (0, 1/4] (a relative excess up to 1e-12, from rounding, counts as 1/4).
+    m1,2 = M (1 +- sqrt(1 - 4 eta)) / 2, inverting :func:`symmetric_mass_ratio`; m2 is evaluated
+    as 2 eta M / (1 + sqrt(1 - 4 eta)), the same value without cancellation at small eta. NaN
+    where eta is outside (0, 1/4] (a relative excess up to 1e-12, from rounding, counts as 1/4).
     """
     mt, eta = _f(mt), _f(eta)
     disc = 1.0 - 4.0 * eta
     disc = np.where((disc < 0) & (disc > -4e-12), 0.0, disc)
     ok = (eta > 0) & (disc >= 0) & (mt > 0)
     root = np.sqrt(np.where(ok, disc, np.nan))
-    return 0.5 * mt * (1.0 + root), 0.5 * mt * (1.0 - root)
+    return 0.5 * mt * (1.0 + root), 2.0 * eta * mt / (1.0 + root)
 
 
 def masses_from_chirp_eta(mc: ArrayLike, eta: ArrayLike) -> tuple[FloatArray, FloatArray]:

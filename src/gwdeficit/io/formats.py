@@ -8,8 +8,9 @@ back verbatim); typed formats keep their types. Nothing here interprets a column
 Formats (detected from the file name, or forced with ``fmt``):
 
 - ``csv``, ``tsv``, ``whitespace`` text, each optionally gzip/bz2/xz compressed; leading lines
-  starting with ``#`` are comments (for whitespace tables, a last comment line directly above
-  numeric data is taken as the header, as numpy.savetxt writes it). Read with pandas in chunks.
+  starting with ``#`` are comments (for whitespace tables whose first line is data, i.e. holds a
+  number, the last comment line is the header, as numpy.savetxt writes it). Read with pandas in
+  chunks.
 - ``parquet`` (a file or a directory dataset) and ``feather`` (Arrow IPC), read with
   pyarrow.dataset record batches.
 - ``fits`` and ``ecsv`` tables through astropy.table (first table HDU for FITS); column units
@@ -25,6 +26,7 @@ from __future__ import annotations
 import csv
 import io
 import os
+import warnings
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -125,8 +127,6 @@ def open_table(
 
 
 def _text_head(path: Path, comp: str | None, n_lines: int = 200) -> list[str]:
-    import pandas as pd  # noqa: F401  (pandas' own decompression is used for the body)
-
     opener: Callable[..., io.TextIOBase]
     if comp == "gzip":
         import gzip
@@ -198,7 +198,7 @@ def _read_text(path: Path, batch_rows: int, fmt: str = "text") -> RawTable:
     if fmt == "whitespace":
         tokens = first.split()
         comments = [h for h in head[:n_comment] if h.strip()]
-        if tokens and all(_is_number(t) for t in tokens) and comments:
+        if tokens and any(_is_number(t) for t in tokens) and comments:
             names = _whitespace_header(comments[-1].lstrip().lstrip("#"))
             header_from_comment = True
         else:
@@ -234,8 +234,23 @@ def _read_text(path: Path, batch_rows: int, fmt: str = "text") -> RawTable:
                 engine="c",
                 index_col=False,
             )
+            first = 1
             with reader:
-                for chunk in reader:
+                while True:
+                    # pandas only warns when a row has more fields than the header and drops
+                    # the excess; that would lose data, so it is an error here.
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("error", pd.errors.ParserWarning)
+                        try:
+                            chunk = next(reader)
+                        except StopIteration:
+                            break
+                        except pd.errors.ParserWarning as exc:
+                            raise InputFileError(
+                                f"{path}: a row among data rows {first}..{first + batch_rows - 1}"
+                                f" has more fields than the header ({len(names)})"
+                            ) from exc
+                    first += len(chunk)
                     yield pa.Table.from_pandas(chunk, preserve_index=False)
         except (pd.errors.ParserError, UnicodeDecodeError, OSError, EOFError) as exc:
             raise InputFileError(f"{path}: cannot parse as {fmt}: {exc}") from exc
@@ -320,6 +335,7 @@ def _column_to_arrow(name: str, col: object, path: Path) -> pa.Array:
         values = np.char.strip(values)
         return pa.array(values.astype(object), type=pa.string(), mask=mask)
     if values.dtype.kind in "biuf":
+        values = values.astype(values.dtype.newbyteorder("="), copy=False)  # FITS is big-endian
         return pa.array(values, mask=mask if mask.any() else None)
     raise InputFileError(f"{path}: column {name!r} has an unsupported type {values.dtype}")
 

@@ -356,6 +356,12 @@ class BatchConverter:
             notes.append("no event column: each row is its own event, labelled row<N>, sample 0")
             if p.has("sample"):
                 notes.append(f"column {self._col('sample')!r} not used: each row is its own event")
+        for a, b in (("lambda1", "lambda2"), ("lambda2", "lambda1")):
+            if p.has(a) and not p.has(b):
+                notes.append(
+                    f"{b}: not given, left missing (NaN); in rows relabelled because m1 < m2 "
+                    f"it is {a} that is missing"
+                )
         if not p.has("weight"):
             notes.append("no weight column: weight = 1")
         if p.ignored:
@@ -373,7 +379,10 @@ class BatchConverter:
 
     def convert(self, table: pa.Table, first_row: int) -> ConvertedBatch:
         """Convert one raw batch whose first row is data row ``first_row`` (1-based)."""
-        return _Batch(self, table, first_row).run()
+        # Hostile values (1e308, inf) overflow harmlessly in intermediate steps; such rows are
+        # rejected by the checks, so numpy's floating-point warnings would only be noise.
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            return _Batch(self, table, first_row).run()
 
     def data_notes(self) -> list[str]:
         """Notes that depend on the data seen so far (conventions detected, rows swapped)."""
