@@ -11,6 +11,7 @@ from scipy import stats
 from gwdeficit.resample import (
     Stat,
     bootstrap_means,
+    event_kinds,
     point_estimates,
     prepare_population,
     retained_fraction,
@@ -276,3 +277,13 @@ def test_errors_name_the_problem():
         bootstrap_means(df, ["deficit_msun"], 5, np.random.default_rng(0), selection="column")
     with pytest.raises(OptionError, match="escape speed"):
         bootstrap_means(df, [], 5, np.random.default_rng(0), escape_speeds_kms=[-3])
+
+
+def test_an_event_counts_once_in_its_majority_kind():
+    df = _remnants([[1.0, 2.0, 3.0, 4.0], [5.0, 6.0]], [[1.0, 1.0, 1.0, 0.5], [1.0, 1.0]])
+    df["kind"] = ["BNS", "NSBH", "NSBH", "BNS", "BNS", "NSBH"]
+    kinds = event_kinds(df)
+    assert kinds.to_dict() == {"E0000": "NSBH", "E0001": "BNS"}  # weight 2 vs 1.5; tie -> BNS
+    pop = prepare_population(df, ["deficit_msun"], kind="NSBH")
+    assert pop.n_events == 1 and pop.info["rows_used"] == 4
+    assert pop.info["events_mixed_kind"] == 1

@@ -172,8 +172,8 @@ def _summary(values: NDArray[np.float64]) -> dict[str, float]:
     return dict(zip(QUANTILES, (float(x) for x in q), strict=True))
 
 
-def _kinds_present(remnants: pd.DataFrame) -> list[str]:
-    present = set(event_kinds(remnants).astype(str))
+def _kinds_present(kinds_of_events: pd.Series) -> list[str]:
+    present = set(kinds_of_events.astype(str))
     known = [k for k in KINDS if k in present]
     return known + sorted(present - set(KINDS))
 
@@ -254,7 +254,8 @@ def compute_budget(
     stats = [Stat(name, col) for name, col in MEAN_COLUMNS.items()]
     stats += [Stat(retained_name(v), "vkick_kms", v) for v in speeds]
     columns = list(dict.fromkeys(st.column for st in stats))
-    present = _kinds_present(remnants)
+    kinds_of_events = event_kinds(remnants)
+    present = _kinds_present(kinds_of_events)
     planned: list[tuple[str, str | None, RateModel]] = []
     defaults_used = False
     mode = "single" if rate is not None else "per-kind"
@@ -291,7 +292,13 @@ def compute_budget(
     for label, kind, model in planned:
         try:
             pop = prepare_population(
-                remnants, columns, selection=selection, kind=kind, source=source, digest=True
+                remnants,
+                columns,
+                selection=selection,
+                kind=kind,
+                source=source,
+                digest=True,
+                kinds_of_events=kinds_of_events,
             )
         except SchemaError as exc:
             if kind is None or "no estimated rows" not in str(exc):
@@ -436,7 +443,7 @@ def compute_budget(
             }
         )
 
-    counts = _counts(remnants, groups, left_out)
+    counts = _counts(remnants, groups, left_out, kinds_of_events)
     fits_meta = {
         "used": {g.label: g.pop.info.get("fits", {}) for g in groups},
         "left_out": {g.label: g.pop.info.get("fits_left_out", {}) for g in groups},
@@ -536,7 +543,10 @@ def _group_notes(g: _Group, notes: list[str]) -> None:
 
 
 def _counts(
-    remnants: pd.DataFrame, groups: Sequence[_Group], left_out: Mapping[str, str]
+    remnants: pd.DataFrame,
+    groups: Sequence[_Group],
+    left_out: Mapping[str, str],
+    kinds_of_events: pd.Series,
 ) -> dict[str, Any]:
     """Row and event counts; rows_in = sum of the populations' rows + rows of kinds left out."""
     per: dict[str, Any] = {}
@@ -555,9 +565,11 @@ def _counts(
                 "rows_outside_calibration",
             )
         }
-    ek = event_kinds(remnants)
-    ev = remnants["event"].astype(str)
-    rows_left = {k: int(ev.isin(ek.index[ek.astype(str) == k]).sum()) for k in left_out}
+    rows_left: dict[str, int] = {}
+    if left_out:
+        ev = remnants["event"].astype(str)
+        ek = kinds_of_events.astype(str)
+        rows_left = {k: int(ev.isin(ek.index[ek == k]).sum()) for k in left_out}
     return {
         "rows_in": len(remnants),
         "populations": per,

@@ -179,15 +179,18 @@ def event_kinds(remnants: pd.DataFrame) -> pd.Series:
     """
     import pandas as pd
 
-    w = pd.to_numeric(remnants["weight"], errors="coerce").fillna(0.0)
-    tab = (
-        pd.DataFrame({"event": remnants["event"].astype(str), "kind": remnants["kind"], "w": w})
-        .groupby(["event", "kind"], sort=True)["w"]
-        .sum()
-        .reset_index()
-        .sort_values(["event", "w", "kind"], ascending=[True, False, True], kind="mergesort")
-    )
-    return tab.drop_duplicates("event").set_index("event")["kind"]
+    w = pd.to_numeric(remnants["weight"], errors="coerce").to_numpy(np.float64)
+    w = np.where(np.isfinite(w), w, 0.0)
+    ev_labels, ev = _factorize_sorted(remnants["event"])
+    k_labels, k = _factorize_sorted(remnants["kind"])
+    nk = max(k_labels.size, 1)
+    flat = ev * nk + k
+    size = ev_labels.size * nk
+    weight = np.bincount(flat, weights=w, minlength=size).reshape(-1, nk)
+    present = np.bincount(flat, minlength=size).reshape(-1, nk) > 0
+    # kinds are sorted, so argmax picks the alphabetically first kind among tied maxima
+    best = np.argmax(np.where(present, weight, -np.inf), axis=1)
+    return pd.Series(k_labels[best], index=pd.Index(ev_labels, name="event"), name="kind")
 
 
 def _used_mask(remnants: pd.DataFrame) -> NDArray[np.bool_]:
@@ -202,13 +205,15 @@ def prepare_population(
     kind: str | None = None,
     source: str = "remnants table",
     digest: bool = False,
+    kinds_of_events: pd.Series | None = None,
 ) -> Population:
     """Sort, index and weigh a remnants table for :func:`run_bootstrap`.
 
     Rows whose ``remnant_status`` starts with ``not_estimated`` are left out (counted in
     ``info``); so are events whose used rows all have zero weight. ``kind``: keep only the
     events whose majority kind (:func:`event_kinds`) is this one. ``digest``: also compute a
-    SHA-256 of the sorted, used content (row-order independent). Raises :class:`SchemaError`
+    SHA-256 of the sorted, used content (row-order independent). ``kinds_of_events``: the
+    result of :func:`event_kinds` when the caller has it already. Raises :class:`SchemaError`
     for missing columns and :class:`BadRowsError` for invalid weights or volume-times.
     """
     import pandas as pd
@@ -242,7 +247,7 @@ def prepare_population(
     keep = np.ones(n_in, dtype=bool)
     info: dict[str, Any] = {"rows_in": n_in}
     if kind is not None:
-        kinds = event_kinds(remnants)
+        kinds = event_kinds(remnants) if kinds_of_events is None else kinds_of_events
         keep = (kinds.reindex(labels_all).to_numpy() == kind)[codes_all]
         info["rows_in"] = int(keep.sum())
         _, kcodes = _factorize_sorted(remnants["kind"])
@@ -301,7 +306,8 @@ def prepare_population(
         ties = [_numeric(c)[idx] for c in dict.fromkeys(columns)]
         order = np.lexsort((*ties[::-1], weight_all[idx], sample, codes))
         idx, codes, sample = idx[order], codes[order], sample[order]
-    identity = idx.size == n_in and bool(np.all(idx == np.arange(n_in)))
+    # idx comes from flatnonzero (increasing); only a sort can have moved it
+    identity = idx.size == n_in and is_sorted and not dup
     w = weight_all if identity else weight_all[idx]
 
     # Values per column: default + per-fit alternatives.
@@ -500,6 +506,11 @@ def run_bootstrap(
     flat = {c: v.ravel() for c, v in pop.values.items()}
     width = {c: v.shape[1] for c, v in pop.values.items()}
     has_nan = {c: bool(np.isnan(v).any()) for c, v in pop.values.items()}
+    # A column with one value everywhere (e.g. no ejected mass in a BBH population) has that
+    # population mean whatever is resampled: no gathers needed.
+    const = {
+        c: float(v.flat[0]) for c, v in pop.values.items() if v.size and np.all(v == v.flat[0])
+    }
     unit = bool(np.all(pop.event_weight == 1.0) and np.all(pop.row_factor == 1.0))
     idx_type = np.int32 if n_ev < 2**31 - 1 else np.int64
 
@@ -529,6 +540,13 @@ def run_bootstrap(
                     wgt = pop.event_weight[ev] * pop.row_factor[rows]
                     den = wgt.sum(axis=1)
                 for column, sts in by_column.items():
+                    if column in const:
+                        for st in sts:
+                            y0 = const[column]
+                            res[st.name][sl] = (
+                                y0 if st.threshold is None else float(y0 < st.threshold)
+                            )
+                        continue
                     a = alt[_COLUMN_FAMILY.get(column)]
                     k = width[column]
                     pos = rows * k + a[:, None] if k > 1 else rows
