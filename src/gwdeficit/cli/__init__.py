@@ -52,6 +52,9 @@ def _root(
 from gwdeficit.cli import plot as _plot  # noqa: E402
 
 app.command("plot")(_plot.plot)
+from gwdeficit.cli import demo as _demo  # noqa: E402
+
+app.command("demo")(_demo.demo)
 from gwdeficit.cli import cosmic as _cosmic  # noqa: E402
 
 app.command("cosmic")(_cosmic.cosmic)
