@@ -315,7 +315,14 @@ def ingest(
         atomic_path(rej_out, force=force, inputs=(src,)) as rej_tmp,
     ):
         stream = CatalogueStream(src, opts)
-        writer = pq.ParquetWriter(tmp, stream.schema, compression="zstd", store_schema=False)
+        # Dictionary-encode only label columns with few distinct values; trying it on floats
+        # or on one-label-per-row events costs time for nothing.
+        labels = ["kind", "spin_assumption"]
+        if stream.plan.has("event") or opts.event is not None:
+            labels.append("event")
+        writer = pq.ParquetWriter(
+            tmp, stream.schema, compression="zstd", use_dictionary=labels, store_schema=False
+        )
         header = True
         try:
             with open(rej_tmp, "w", encoding="utf-8", newline="") as fh:
