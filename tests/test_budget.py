@@ -8,6 +8,8 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from gwdeficit.budget import SUMMARY_COLUMNS, compute_budget, mass_loss_rates
 from gwdeficit.rates import RateEvolution, parse_rate
@@ -20,6 +22,7 @@ from gwdeficit.schema import (
     META_SUMMARY,
     RATE_SUMMARY_COLUMNS,
     OptionError,
+    SchemaError,
 )
 from gwdeficit.volumes import parse_volume
 
@@ -323,3 +326,54 @@ def test_madau_dickinson_beyond_its_range_is_said():
         _pop(5, 2), volumes=["cosmic:10"], rate=parse_rate("24", evolution=evo), n_draws=20
     )
     assert any("extrapolated" in n for n in b.notes)
+
+
+@settings(max_examples=25, deadline=None)
+@given(
+    st.lists(
+        st.tuples(
+            st.integers(0, 5),  # event
+            st.sampled_from(["BBH", "NSBH", "BNS"]),
+            st.sampled_from([0.0, 0.5, 1.0, 2.0]),  # weight
+            st.booleans(),  # estimated
+            st.floats(0.01, 10.0),  # deficit
+        ),
+        min_size=1,
+        max_size=25,
+    ),
+    st.sets(st.sampled_from(["BBH", "NSBH", "BNS"])),
+    st.randoms(use_true_random=False),
+)
+def test_counts_add_up_and_row_order_never_matters(rows, rated, rnd):
+    df = pd.DataFrame(rows, columns=["e", "kind", "weight", "ok", "deficit_msun"])
+    df["event"] = "E" + df.pop("e").astype(str)
+    df["sample"] = df.groupby("event").cumcount()
+    ok = df.pop("ok")
+    df["remnant_status"] = np.where(ok, "estimated", "not_estimated:test")
+    df.loc[~ok, "deficit_msun"] = np.nan
+    df["erad_msun"] = df["deficit_msun"]
+    df["ejected_msun"] = np.where(ok, 0.0, np.nan)
+    df["vkick_kms"] = 100.0
+    kw = {
+        "volumes": ["mw"],
+        "rates_by_kind": {k: "24 +14 -9" for k in sorted(rated)} or None,
+        "n_draws": 20,
+        "seed": 1,
+    }
+    try:
+        a = compute_budget(df, **kw)
+    except (OptionError, SchemaError):
+        return
+    c = a.counts
+    assert c["rows_in"] == len(df)
+    assert c["rows_in"] == sum(p["rows_in"] for p in c["populations"].values()) + sum(
+        c["rows_in_kinds_left_out"].values()
+    )
+    for p in c["populations"].values():
+        assert (
+            p["rows_in"] == p["rows_used"] + p["rows_not_estimated"] + p["rows_zero_weight_events"]
+        )
+    order = list(range(len(df)))
+    rnd.shuffle(order)
+    b = compute_budget(df.iloc[order].reset_index(drop=True), **kw)
+    pd.testing.assert_frame_equal(a.table, b.table)

@@ -6,6 +6,8 @@ import astropy.units as u
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from gwdeficit.rates import (
     DEFAULT_RATES,
@@ -19,7 +21,14 @@ from gwdeficit.rates import (
     parse_rate,
     rate_unit_factor,
 )
-from gwdeficit.schema import BadRowsError, InputFileError, OptionError, SchemaError, UnitError
+from gwdeficit.schema import (
+    BadRowsError,
+    GwdeficitError,
+    InputFileError,
+    OptionError,
+    SchemaError,
+    UnitError,
+)
 
 
 def test_fixed_value():
@@ -189,3 +198,20 @@ def test_describe_is_json_ready():
     d = parse_rate("24 +14 -9").describe()
     json.dumps(d)
     assert d["unit"] == RATE_UNIT and d["form"] == "split-lognormal"
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.one_of(
+        st.text(max_size=30),
+        st.text(alphabet="0123456789.+-eE ±/()^_{},.GMpcyr", max_size=20),
+        st.from_regex(r"\A-?[0-9.e]{1,6} ?\+?[0-9.]{0,4} ?-?[0-9.]{0,4}( Mpc-3 yr-1)?\Z"),
+    )
+)
+def test_any_text_gives_a_model_or_a_user_error(text):
+    # exit-code contract: bad input raises the typed error family, never anything else
+    try:
+        m = parse_rate(text)
+    except GwdeficitError:
+        return
+    assert m.median > 0 and m.lo90 <= m.median <= m.hi90

@@ -205,6 +205,8 @@ def test_inspiral_volume_selection_recovers_the_intrinsic_mean():
     d = bootstrap_means(df, ["deficit_msun"], 3, rng, sources=(), selection="inspiral-volume")
     assert d["deficit_msun"][0] == pytest.approx(truth, rel=0.02)
     assert np.mean(mc) > 1.5 * truth  # the unweighted mean is far off
+    boot = bootstrap_means(df, ["deficit_msun"], 100, rng, sources=POP, selection="inspiral-volume")
+    assert np.median(boot["deficit_msun"]) == pytest.approx(truth, rel=0.03)
     # the same through a user column of volume-time proportional to Mc^(15/6)
     df["vt_gpc3_yr"] = 3.0 * mc**2.5
     d2 = bootstrap_means(df, ["deficit_msun"], 3, rng, sources=(), selection="column")

@@ -5,10 +5,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from astropy.cosmology import FlatLambdaCDM, Planck18
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.integrate import quad
 
 from gwdeficit.rates import RateEvolution
-from gwdeficit.schema import OptionError
+from gwdeficit.schema import GwdeficitError, OptionError
 from gwdeficit.volumes import (
     COSMIC_ZMAX_DEFAULT,
     MWEG_DENSITY_MPC3,
@@ -72,6 +74,7 @@ def test_parse_forms(text, form, value):
         "sphere:1kg",
         "stellar:5 km",
         "cosmic:-1",
+        "cosmic:2000",
         "gpc",
     ],
 )
@@ -169,3 +172,20 @@ def test_describe():
     assert d["stellar_density_msun_mpc3"] == 5e8 and d["time"] == "source frame"
     assert parse_volume("cosmic:2").describe()["time"] == "observer frame"
     assert isinstance(parse_volume(Volume("mw", "mw")), Volume)
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.one_of(
+        st.text(max_size=30),
+        st.from_regex(
+            r"\A(mw|gpc3|mpc3|stellar|sphere|cosmic)(:[-0-9.e+ ]{0,8}( ?[a-zA-Z]{0,4}))?\Z"
+        ),
+    )
+)
+def test_any_text_gives_a_volume_or_a_user_error(text):
+    try:
+        v = parse_volume(text)
+    except GwdeficitError:
+        return
+    assert v.form in {"mw", "gpc3", "mpc3", "stellar", "sphere", "cosmic"}

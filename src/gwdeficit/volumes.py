@@ -48,6 +48,9 @@ STELLAR_DENSITY_MSUN_MPC3 = 3.7e8
 #: Upper redshift of a bare ``cosmic`` volume.
 COSMIC_ZMAX_DEFAULT = 10.0
 
+#: Largest ZMAX accepted (beyond recombination the merger-rate models mean nothing).
+COSMIC_ZMAX_LIMIT = 1000.0
+
 #: Points of the redshift grid of the volume integrals (odd, for Simpson's rule).
 ZGRID_POINTS = 4097
 
@@ -257,6 +260,10 @@ def parse_volume(text: str | Volume) -> Volume:
             value = _quantity_value(arg_raw, "", "ZMAX", raw)
         if not (np.isfinite(value) and value > 0):
             raise OptionError(f"volume {raw!r}: the value must be positive; {VOLUME_FORMS_HELP}")
+        if name == "cosmic" and value > COSMIC_ZMAX_LIMIT:
+            raise OptionError(
+                f"volume {raw!r}: ZMAX must not exceed {COSMIC_ZMAX_LIMIT:g}; {VOLUME_FORMS_HELP}"
+            )
         return Volume(f"{name}:{arg_raw.replace(' ', '')}", name, value)
     raise OptionError(f"volume {raw!r} is not known; {VOLUME_FORMS_HELP}")
 
