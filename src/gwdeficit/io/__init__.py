@@ -230,7 +230,10 @@ def ingest_table(source: Any, options: IngestOptions | None = None, **kw: Any) -
         if batch.rejected is not None:
             rejected.append(batch.rejected)
     table = pa.concat_tables(accepted) if accepted else stream.schema.empty_table()
-    df = table.to_pandas()
+    accepted.clear()
+    # split_blocks + self_destruct: columns are handed over without a consolidating copy.
+    df = table.to_pandas(split_blocks=True, self_destruct=True)
+    del table
     meta = stream.metadata()
     df.attrs.update(meta)
     rej = (

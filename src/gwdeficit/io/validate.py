@@ -278,6 +278,9 @@ class BatchConverter:
                 f"unlabelled masses taken as {self.options.mass_frame} frame "
                 f"(--mass-frame {self.options.mass_frame}): {', '.join(map(repr, unlabelled))}"
             )
+        named = [pc.column for pc in p.columns.values() if pc.frame == "source" and pc.frame_given]
+        if named:
+            notes.append("source-frame masses by name or mapping: " + ", ".join(map(repr, named)))
         detector = [pc.column for pc in p.columns.values() if pc.frame == "detector"]
         if detector:
             notes.append(
