@@ -42,7 +42,7 @@ def test_spin_difference_perp():
     ) == pytest.approx(0.0, abs=1e-7)
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(
     st.floats(0.01, 1.0), st.floats(0, 1), st.floats(0, 1), st.floats(0, np.pi),
     st.floats(0, np.pi), st.floats(0, 2 * np.pi), st.floats(0, 2 * np.pi),

@@ -22,7 +22,8 @@ def test_bmr12_is_its_published_form():
     p0, p1 = mass.BMR12_COEFFICIENTS["p0"], mass.BMR12_COEFFICIENTS["p1"]
     expect = (1 - e) * nu + 4 * nu**2 * (4 * p0 + 16 * p1 * a * (a + 1) + e - 1)
     got = mass.barausse_morozova_rezzolla_2012(q, a1, np.abs(a2), 0.0, np.where(a2 < 0, np.pi, 0))
-    np.testing.assert_allclose(got, expect, rtol=1e-12)
+    # the kernel takes E_isco from the Newton solve of fits.isco (<= 3e-11 off the closed form)
+    np.testing.assert_allclose(got, expect, rtol=1e-9)
 
 
 def test_bmr12_equal_mass_nonspinning_is_p0():
@@ -45,7 +46,7 @@ def test_in_plane_spins_do_not_enter_bmr12():
     assert a == pytest.approx(float(mass.barausse_morozova_rezzolla_2012(0.5, 0.0, 0.0)))
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(
     st.floats(0.01, 1.0), st.floats(0, 1), st.floats(0, 1), st.floats(0, np.pi), st.floats(0, np.pi)
 )

@@ -70,7 +70,9 @@ def test_kernels_agree_with_public_functions():
     c1, c2 = rng.uniform(0, 1, n), rng.uniform(0, 1, n)
     t1, t2 = rng.uniform(0, np.pi, n), rng.uniform(0, np.pi, n)
     p12, ph = rng.uniform(0, 2 * np.pi, n), rng.uniform(0, 2 * np.pi, n)
-    comp = registry.components(q, c1, c2, np.cos(t1), np.cos(t2), np.cos(p12), np.cos(ph))
+    comp = registry.components(
+        q, c1, c2, np.cos(t1), np.sin(t1), np.cos(t2), np.sin(t2), np.cos(p12), np.cos(ph)
+    )
     for f in registry.REGISTRY:
         args = {"final_spin": (p12,), "final_mass": (), "recoil": (p12, ph)}[f.quantity]
         np.testing.assert_allclose(

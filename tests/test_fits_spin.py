@@ -72,7 +72,7 @@ def _bkl_residual(x, nu, s):
     return x - nu * isco.isco_angular_momentum(x) - s
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(ratio, unit, unit, angle, angle, st.floats(0.0, 2 * np.pi))
 def test_spin_fits_are_symmetric_under_exchange(q, c1, c2, t1, t2, p12):
     # labelling symmetry (exact; common practice, no source)

@@ -16,8 +16,15 @@ every spin in [-1, 1]; spins outside that interval give NaN.
 
 from __future__ import annotations
 
+import functools
+import inspect
+from collections.abc import Callable
+from typing import Any, TypeVar
+
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
+
+F = TypeVar("F", bound=Callable[..., Any])
 
 __all__ = [
     "circular_orbit_angular_momentum",
@@ -27,9 +34,33 @@ __all__ = [
     "isco_radius",
     "isco_spin_from_w",
     "isco_w",
+    "isco_w_solve",
+    "ufunc_like",
 ]
 
 _TWO_OVER_3SQRT3 = 2.0 / (3.0 * np.sqrt(3.0))
+
+
+def ufunc_like(fn: F) -> F:
+    """Make a formula on 1-d float64 arrays broadcast like a ufunc.
+
+    Positional arguments (defaults filled in) are broadcast together, flattened for ``fn`` and
+    the result is reshaped to the broadcast shape (0-d for scalars). Lets the kernels update
+    their temporaries in place.
+    """
+    params = list(inspect.signature(fn).parameters.values())
+    defaults = tuple(p.default for p in params if p.default is not inspect.Parameter.empty)
+    n_all = len(params)
+
+    @functools.wraps(fn)
+    def wrapper(*args: ArrayLike) -> NDArray[np.float64]:
+        if len(args) < n_all:
+            args = args + defaults[len(defaults) - (n_all - len(args)) :]
+        arrays = np.broadcast_arrays(*(np.asarray(a, dtype=np.float64) for a in args))
+        shape = arrays[0].shape
+        return np.asarray(fn(*(a.reshape(-1) for a in arrays))).reshape(shape)
+
+    return wrapper  # type: ignore[return-value]
 
 
 def isco_radius(chi: ArrayLike) -> NDArray[np.float64]:
@@ -117,3 +148,54 @@ def isco_spin_from_w(w: ArrayLike) -> NDArray[np.float64]:
     """
     w = np.asarray(w, dtype=np.float64)
     return np.sqrt((w * w + 2.0) / 3.0) * (4.0 - w) / 3.0
+
+
+ISCO_NEWTON_STEPS = 3
+
+
+@ufunc_like
+def isco_w_solve(chi: ArrayLike) -> NDArray[np.float64]:
+    """w = sqrt(3 r_isco - 2) for signed spin ``chi`` by Newton iterations (no cube roots).
+
+    Solves a(w) = u (4 - w) / 3 = chi (the ISCO condition of Bardeen, Press & Teukolsky 1972,
+    see :func:`isco_spin_from_w`) with a'(w) = -2 (w - 1)^2 / (9 u), starting from
+    w0 = 1 + (13.5 x)^(1/3) (1 + 0.3535 x - 0.0935 x^2), x = 1 - chi: the near-extremal
+    inverse a ~ 1 - 2 (w - 1)^3 / 27, stretched to be within 0.11 of w on [-1, 1]. The start
+    is computed in single precision (exp/log, vectorised); three float64 Newton steps then
+    give E_isco to <= 3e-11 and w to <= 3e-10 (checked against :func:`isco_energy` in the
+    tests; a fourth step reaches rounding level). Several times cheaper than the closed form
+    on whole arrays, and free of its cancellation near chi = 0. For |chi| <= 1.
+    """
+    return _w_newton(chi)
+
+
+def _w_newton(a: NDArray[np.float64]) -> NDArray[np.float64]:
+    """:func:`isco_w_solve` on a 1-d float64 array (in-place temporaries)."""
+    x = 1.0 - a
+    with np.errstate(divide="ignore"):
+        root = np.exp(np.log((13.5 * x).astype(np.float32)) * np.float32(1.0 / 3.0))
+    x *= -0.0935
+    x += 0.3535
+    x *= 1.0 - a
+    x += 1.0
+    w = root * x  # float32 * float64 -> float64
+    w += 1.0
+    # Newton on a(w) - chi with temporaries updated in place (three arrays per step)
+    for _ in range(ISCO_NEWTON_STEPS):
+        u = w * w
+        u += 2.0
+        u /= 3.0
+        np.sqrt(u, out=u)
+        g = 4.0 - w
+        g *= u
+        g /= 3.0
+        g -= a
+        d = w - 1.0
+        d *= d
+        d *= -2.0 / 9.0
+        d /= u
+        np.minimum(d, -1e-300, out=d)
+        g /= d
+        w -= g
+        np.clip(w, 1.0, 5.0, out=w)
+    return w

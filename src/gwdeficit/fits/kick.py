@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from gwdeficit.fits.isco import ufunc_like
 from gwdeficit.fits.spin import _nu, spin_components
 
 __all__ = [
@@ -61,6 +62,7 @@ LOUSTO12_COEFFICIENTS = {
 }
 
 
+@ufunc_like
 def spin_difference_perp(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -83,35 +85,47 @@ def _dperp(q, chi1p, chi2p, cphi):
     return np.sqrt(np.maximum(chi1p * chi1p + qa2 * (qa2 - 2.0 * chi1p * cphi), 0.0))
 
 
-def _combine(v_m, v_perp, v_par, xi_deg):
-    cxi, sxi = np.cos(np.radians(xi_deg)), np.sin(np.radians(xi_deg))
-    x = v_m + v_perp * cxi
-    y = v_perp * sxi
-    return np.sqrt(x * x + y * y + v_par * v_par)
+def _kick_units(q, nu, chi1z, chi2z, dperp, cos_phase):
+    """Shared factors of the kick terms: nu^2/(1+q) times (1 - q), (a1z - q a2z), dperp cos."""
+    f = nu * nu / (1.0 + q)
+    return f * (1.0 - q), f * (chi1z - q * chi2z), f * dperp * cos_phase
 
 
-def _lousto12_kernel(q, nu, chi1z, chi2z, dperp, cos_phase, c=LOUSTO12_COEFFICIENTS):
-    """Lousto et al. 2012 on components (cos_phase = cos Theta)."""
-    opq = 1.0 + q
-    nu2 = nu * nu
-    v_m = c["A_kms"] * nu2 * (1.0 - q) / opq * (1.0 + c["B"] * nu)
-    v_perp = c["H_kms"] * nu2 * (chi1z - q * chi2z) / opq
-    st = 2.0 * (chi1z + q * q * chi2z) / (opq * opq)
-    hang = c["V11_kms"] + st * (c["VA_kms"] + st * (c["VB_kms"] + st * c["VC_kms"]))
-    v_par = 16.0 * nu2 / opq * hang * dperp * cos_phase
-    return _combine(v_m, v_perp, v_par, c["xi_deg"])
+def _combine(nu, m_unit, perp_unit, v_par, c):
+    """|(v_m + v_perp cos xi) e1 + v_perp sin xi e2 + v_par ez| with the fit's A, B, H, xi."""
+    cxi, sxi = np.cos(np.radians(c["xi_deg"])), np.sin(np.radians(c["xi_deg"]))
+    x = c["A_kms"] * (1.0 + c["B"] * nu)
+    x *= m_unit
+    x += (c["H_kms"] * cxi) * perp_unit
+    x *= x
+    y = (c["H_kms"] * sxi) * perp_unit
+    y *= y
+    x += y
+    v_par *= v_par
+    x += v_par
+    return np.sqrt(x, out=x)
 
 
-def _campanelli07_kernel(q, nu, chi1z, chi2z, dperp, cos_phase, c=CAMPANELLI07_COEFFICIENTS):
-    """Campanelli et al. 2007 on components (cos_phase = cos Theta)."""
-    opq = 1.0 + q
-    nu2 = nu * nu
-    v_m = c["A_kms"] * nu2 * (1.0 - q) / opq * (1.0 + c["B"] * nu)
-    v_perp = c["H_kms"] * nu2 * (chi1z - q * chi2z) / opq
-    v_par = c["K_kms"] * nu2 / opq * dperp * cos_phase
-    return _combine(v_m, v_perp, v_par, c["xi_deg"])
+def _lousto12_kernel(nu, s_par, m_unit, perp_unit, par_unit, c=LOUSTO12_COEFFICIENTS):
+    """Lousto et al. 2012 on the shared factors (:func:`_kick_units`); S = 2 s_par."""
+    st = 2.0 * s_par
+    hang = c["VC_kms"] * st
+    hang += c["VB_kms"]
+    hang *= st
+    hang += c["VA_kms"]
+    hang *= st
+    hang += c["V11_kms"]
+    hang *= 16.0
+    hang *= par_unit
+    return _combine(nu, m_unit, perp_unit, hang, c)
 
 
+def _campanelli07_kernel(nu, m_unit, perp_unit, par_unit, c=CAMPANELLI07_COEFFICIENTS):
+    """Campanelli et al. 2007 on the shared factors (:func:`_kick_units`)."""
+    return _combine(nu, m_unit, perp_unit, c["K_kms"] * par_unit, c)
+
+
+@ufunc_like
 def lousto_2012(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -138,10 +152,12 @@ def lousto_2012(
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    dperp = _dperp(q, chi1p, chi2p, cphi)
-    return _lousto12_kernel(q, _nu(q), chi1z, chi2z, dperp, np.cos(phase))
+    nu = _nu(q)
+    units = _kick_units(q, nu, chi1z, chi2z, _dperp(q, chi1p, chi2p, cphi), np.cos(phase))
+    return _lousto12_kernel(nu, (chi1z + q * q * chi2z) / (1.0 + q) ** 2, *units)
 
 
+@ufunc_like
 def campanelli_2007(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -168,5 +184,6 @@ def campanelli_2007(
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    dperp = _dperp(q, chi1p, chi2p, cphi)
-    return _campanelli07_kernel(q, _nu(q), chi1z, chi2z, dperp, np.cos(phase))
+    nu = _nu(q)
+    units = _kick_units(q, nu, chi1z, chi2z, _dperp(q, chi1p, chi2p, cphi), np.cos(phase))
+    return _campanelli07_kernel(nu, *units)

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from gwdeficit.fits.isco import isco_energy
+from gwdeficit.fits.isco import _w_newton, ufunc_like
 from gwdeficit.fits.spin import _bkl_w, _nu, spin_components
 
 __all__ = [
@@ -25,16 +25,30 @@ __all__ = [
 BMR12_COEFFICIENTS = {"p0": 0.04827, "p1": 0.01707}
 
 
-def _bmr12_kernel(q, nu, chi1z, chi2z, c=BMR12_COEFFICIENTS):
-    """BMR12 on the spin components along L."""
-    opq = 1.0 + q
-    at = (chi1z + q * q * chi2z) / (opq * opq)
-    e_isco = isco_energy(at)
-    return (1.0 - e_isco) * nu * (1.0 - 4.0 * nu) + 16.0 * nu * nu * (
-        c["p0"] + 4.0 * c["p1"] * at * (at + 1.0)
-    )
+def _bmr12_kernel(nu, s_par, c=BMR12_COEFFICIENTS):
+    """BMR12 on s_par = (chi1z + q^2 chi2z) / (1 + q)^2, the spin along L over M^2.
+
+    E_isco(s_par) = w / sqrt(w^2 + 2) with w from :func:`fits.isco.isco_w_solve` (the same
+    value as the closed form of fits.isco.isco_energy to ~1e-13, without cube roots).
+    The formula is rearranged as (1 - E) nu (1 - 4 nu) + 16 nu^2 (p0 + 4 p1 a (a + 1)).
+    """
+    w = _w_newton(s_par)
+    e = w * w
+    e += 2.0
+    np.sqrt(e, out=e)
+    np.divide(w, e, out=e)  # E_isco
+    frac = 1.0 - e
+    frac *= nu * (1.0 - 4.0 * nu)
+    corr = s_par + 1.0
+    corr *= s_par
+    corr *= 4.0 * c["p1"]
+    corr += c["p0"]
+    corr *= 16.0 * nu * nu
+    frac += corr
+    return frac
 
 
+@ufunc_like
 def barausse_morozova_rezzolla_2012(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -59,7 +73,7 @@ def barausse_morozova_rezzolla_2012(
     """
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, _, _, _ = spin_components(chi1, chi2, tilt1, tilt2, 0.0)
-    return _bmr12_kernel(q, _nu(q), chi1z, chi2z)
+    return _bmr12_kernel(_nu(q), (chi1z + q * q * chi2z) / (1.0 + q) ** 2)
 
 
 def _isco_binding_from_w(nu, w):
@@ -67,6 +81,7 @@ def _isco_binding_from_w(nu, w):
     return nu * (1.0 - w / np.sqrt(w * w + 2.0))
 
 
+@ufunc_like
 def isco_binding_energy(
     q: ArrayLike,
     chi1: ArrayLike,

@@ -60,32 +60,37 @@ def per_fit_column(column: str, fit_name: str) -> str:
 class Components:
     """Inputs shared by every fit for one chunk of binaries (1-d float64 arrays, q <= 1).
 
-    q = m2/m1; nu = q/(1+q)^2; chi1/chi2 spin magnitudes; chi1z/chi2z components along L;
-    spin_sq = |chi1 + q^2 chi2|^2 (vectors); perp_sq = |chi1_perp + q^2 chi2_perp|^2 / (1+q)^4;
-    dperp = |chi1_perp - q chi2_perp|; cos_phase = cos of the in-plane spin phase at merger.
+    q = m2/m1, q2 = q^2, opq2 = (1+q)^2, nu = q/(1+q)^2; chi1/chi2 spin magnitudes;
+    chi1z/chi2z components along L; sz = chi1z + q^2 chi2z; s_par = sz/(1+q)^2 (total spin
+    along L over M^2); spin_sq = |chi1 + q^2 chi2|^2 (vectors); perp_sq = |chi1_perp +
+    q^2 chi2_perp|^2 / (1+q)^4; dperp = |chi1_perp - q chi2_perp|; cos_phase = cos of the
+    in-plane spin phase at merger.
     """
 
     q: NDArray[np.float64]
+    q2: NDArray[np.float64]
+    opq2: NDArray[np.float64]
     nu: NDArray[np.float64]
     chi1: NDArray[np.float64]
     chi2: NDArray[np.float64]
     chi1z: NDArray[np.float64]
     chi2z: NDArray[np.float64]
+    sz: NDArray[np.float64]
+    s_par: NDArray[np.float64]
     spin_sq: NDArray[np.float64]
     perp_sq: NDArray[np.float64]
     dperp: NDArray[np.float64]
     cos_phase: NDArray[np.float64]
 
     @cached_property
-    def s_par(self) -> NDArray[np.float64]:
-        """Total spin along L over M^2: (chi1z + q^2 chi2z) / (1 + q)^2."""
-        opq = 1.0 + self.q
-        return (self.chi1z + self.q * self.q * self.chi2z) / (opq * opq)
-
-    @cached_property
     def bkl_w(self) -> NDArray[np.float64]:
         """ISCO variable of the Buonanno-Kidder-Lehner final spin (shared by two estimates)."""
         return spin._bkl_w(self.nu, self.s_par)
+
+    @cached_property
+    def kick_units(self) -> tuple[NDArray[np.float64], ...]:
+        """Factors shared by the recoil fits (fits.kick._kick_units)."""
+        return kick._kick_units(self.q, self.nu, self.chi1z, self.chi2z, self.dperp, self.cos_phase)
 
 
 def components(
@@ -93,31 +98,59 @@ def components(
     chi1: NDArray[np.float64],
     chi2: NDArray[np.float64],
     cos_t1: NDArray[np.float64],
+    sin_t1: NDArray[np.float64],
     cos_t2: NDArray[np.float64],
+    sin_t2: NDArray[np.float64],
     cos_phi12: NDArray[np.float64],
     cos_phase: NDArray[np.float64],
 ) -> Components:
-    """Build :class:`Components` from q <= 1, spin magnitudes and cosines of the angles."""
-    sin_t1 = np.sqrt(np.maximum(1.0 - cos_t1 * cos_t1, 0.0))
-    sin_t2 = np.sqrt(np.maximum(1.0 - cos_t2 * cos_t2, 0.0))
+    """Build :class:`Components` from q <= 1, spin magnitudes and cos/sin of the angles.
+
+    Temporaries are updated in place: on cache-sized chunks numpy's cost is dominated by
+    allocating (and page-faulting) new arrays, not by the arithmetic.
+    """
     chi1z, chi2z = chi1 * cos_t1, chi2 * cos_t2
     chi1p, chi2p = chi1 * sin_t1, chi2 * sin_t2
     q2 = q * q
-    cross = chi1p * chi2p * cos_phi12
-    sz = chi1z + q2 * chi2z
-    inplane_sq = chi1p * chi1p + q2 * (q2 * chi2p * chi2p + 2.0 * cross)
-    opq = 1.0 + q
-    opq2 = opq * opq
+    opq2 = q + 1.0
+    opq2 *= opq2
+    sz = q2 * chi2z
+    sz += chi1z
+    # dperp^2 = chi1p^2 + q chi2p (q chi2p - 2 chi1p cos phi12)
+    qc2 = q * chi2p
+    c1c = chi1p * cos_phi12
+    dperp = qc2 - 2.0 * c1c
+    dperp *= qc2
+    p1sq = chi1p * chi1p
+    dperp += p1sq
+    np.sqrt(np.maximum(dperp, 0.0, out=dperp), out=dperp)
+    # |chi1p + q^2 chi2p|^2 = chi1p^2 + q^2 chi2p (q^2 chi2p + 2 chi1p cos phi12)
+    inplane_sq = q2 * chi2p
+    c1c *= 2.0
+    c1c += inplane_sq
+    inplane_sq *= c1c
+    inplane_sq += p1sq
+    np.maximum(inplane_sq, 0.0, out=inplane_sq)
+    nu = q / opq2
+    s_par = sz / opq2
+    spin_sq = sz * sz
+    spin_sq += inplane_sq
+    opq2_sq = opq2 * opq2
+    np.divide(inplane_sq, opq2_sq, out=opq2_sq)
     return Components(
         q=q,
-        nu=q / opq2,
+        q2=q2,
+        opq2=opq2,
+        nu=nu,
         chi1=chi1,
         chi2=chi2,
         chi1z=chi1z,
         chi2z=chi2z,
-        spin_sq=sz * sz + inplane_sq,
-        perp_sq=np.maximum(inplane_sq, 0.0) / (opq2 * opq2),
-        dperp=kick._dperp(q, chi1p, chi2p, cos_phi12),
+        sz=sz,
+        s_par=s_par,
+        spin_sq=spin_sq,
+        perp_sq=opq2_sq,
+        dperp=dperp,
         cos_phase=cos_phase,
     )
 
@@ -194,7 +227,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="precessing-spin final spin; aligned limit of Rezzolla et al. 2008 form",
         calibrated=_NR_DOMAIN,
         in_default=True,
-        kernel=lambda c: spin._br09_kernel(c.q, c.nu, c.chi1z, c.chi2z, c.spin_sq),
+        kernel=lambda c: spin._br09_kernel(c.q, c.q2, c.nu, c.sz, c.spin_sq, c.opq2),
         function=spin.barausse_rezzolla_2009,
     ),
     Fit(
@@ -205,7 +238,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="aligned-spin final spin; in-plane total spin added in quadrature",
         calibrated=_NR_DOMAIN,
         in_default=True,
-        kernel=lambda c: spin._r08_kernel(c.q, c.nu, c.chi1z, c.chi2z, c.perp_sq),
+        kernel=lambda c: spin._r08_kernel(c.q2, c.nu, c.sz, c.perp_sq),
         function=spin.rezzolla_2008,
     ),
     Fit(
@@ -225,7 +258,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="radiated energy from the ISCO binding energy plus an NR-fitted correction",
         calibrated=_NR_DOMAIN,
         in_default=True,
-        kernel=lambda c: mass._bmr12_kernel(c.q, c.nu, c.chi1z, c.chi2z),
+        kernel=lambda c: mass._bmr12_kernel(c.nu, c.s_par),
         function=mass.barausse_morozova_rezzolla_2012,
     ),
     Fit(
@@ -247,7 +280,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="mass-ratio, aligned-spin and superkick terms with hang-up dependence",
         calibrated=_NR_DOMAIN,
         in_default=True,
-        kernel=lambda c: kick._lousto12_kernel(c.q, c.nu, c.chi1z, c.chi2z, c.dperp, c.cos_phase),
+        kernel=lambda c: kick._lousto12_kernel(c.nu, c.s_par, *c.kick_units),
         function=kick.lousto_2012,
     ),
     Fit(
@@ -258,9 +291,7 @@ REGISTRY: tuple[Fit, ...] = (
         summary="mass-ratio, aligned-spin and superkick terms (no hang-up dependence)",
         calibrated=_NR_DOMAIN,
         in_default=True,
-        kernel=lambda c: kick._campanelli07_kernel(
-            c.q, c.nu, c.chi1z, c.chi2z, c.dperp, c.cos_phase
-        ),
+        kernel=lambda c: kick._campanelli07_kernel(c.nu, *c.kick_units),
         function=kick.campanelli_2007,
     ),
 )

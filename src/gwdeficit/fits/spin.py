@@ -16,6 +16,8 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from gwdeficit.fits.isco import ufunc_like
+
 __all__ = [
     "BR09_COEFFICIENTS",
     "R08_COEFFICIENTS",
@@ -77,24 +79,28 @@ def _nu(q: NDArray[np.float64]) -> NDArray[np.float64]:
 # --------------------------------------------------------------------------------------------
 
 
-def _br09_kernel(q, nu, chi1z, chi2z, spin_sq, c=BR09_COEFFICIENTS):
-    """BR09 on components: spin_sq = |chi1_vec + q^2 chi2_vec|^2, chi_iz along L."""
-    q2 = q * q
-    opq2 = 1.0 + q2
-    sz = chi1z + q2 * chi2z  # (a1 cos beta + a2 q^2 cos gamma)
-    ell = (
-        c["s4"] * spin_sq / (opq2 * opq2)
-        + (c["s5"] * nu + c["t0"] + 2.0) * sz / opq2
-        + _TWO_SQRT3
-        + nu * (c["t2"] + c["t3"] * nu)
-    )
-    lq = np.abs(ell) * q
-    opq = 1.0 + q
-    # |a1 + a2 q^2 + l q Lhat| / (1 + q)^2; the radicand is >= (|S| - lq)^2 >= 0 up to rounding.
-    chif = np.sqrt(np.maximum(spin_sq + lq * (2.0 * sz + lq), 0.0)) / (opq * opq)
+def _br09_kernel(q, q2, nu, sz, spin_sq, opq2, c=BR09_COEFFICIENTS):
+    """BR09 on precomputed inputs.
+
+    q2 = q^2, sz = chi1z + q^2 chi2z (spins along L), spin_sq = |chi1 + q^2 chi2|^2 (vectors),
+    opq2 = (1 + q)^2.
+    """
+    opq2_ = 1.0 + q2
+    ell = spin_sq * (c["s4"] / (opq2_ * opq2_))
+    ell += (c["s5"] * nu + (c["t0"] + 2.0)) * sz / opq2_
+    ell += _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
+    lq = np.abs(ell, out=ell)
+    lq *= q
+    # |a1 + a2 q^2 + l q Lhat|^2 = spin_sq + l q (2 sz + l q) >= 0 up to rounding
+    rad = 2.0 * sz + lq
+    rad *= lq
+    rad += spin_sq
+    chif = np.sqrt(np.maximum(rad, 0.0, out=rad), out=rad)
+    chif /= opq2
     return np.minimum(chif, 1.0)
 
 
+@ufunc_like
 def barausse_rezzolla_2009(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -125,10 +131,9 @@ def barausse_rezzolla_2009(
     q = np.asarray(q, dtype=np.float64)
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
     q2 = q * q
-    spin_sq = (
-        (chi1z + q2 * chi2z) ** 2 + chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi
-    )
-    return _br09_kernel(q, _nu(q), chi1z, chi2z, spin_sq)
+    sz = chi1z + q2 * chi2z
+    spin_sq = sz**2 + chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi
+    return _br09_kernel(q, q2, _nu(q), sz, spin_sq, (1.0 + q) ** 2)
 
 
 # --------------------------------------------------------------------------------------------
@@ -136,17 +141,25 @@ def barausse_rezzolla_2009(
 # --------------------------------------------------------------------------------------------
 
 
-def _r08_kernel(q, nu, chi1z, chi2z, perp_sq, c=R08_COEFFICIENTS):
-    """R08 on components; perp_sq = |chi1_perp + q^2 chi2_perp|^2 / (1 + q)^4."""
-    q2 = q * q
-    at = (chi1z + q2 * chi2z) / (1.0 + q2)
-    par = at + nu * (
-        at * (c["s4"] * at + c["s5"] * nu + c["t0"]) + _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
-    )
-    chif = np.sqrt(par * par + perp_sq)
+def _r08_kernel(q2, nu, sz, perp_sq, c=R08_COEFFICIENTS):
+    """R08 on precomputed inputs.
+
+    sz = chi1z + q^2 chi2z, perp_sq = |chi1p + q^2 chi2p|^2 / (1 + q)^4.
+    """
+    at = sz / (1.0 + q2)
+    par = c["s4"] * at
+    par += c["s5"] * nu + c["t0"]
+    par *= at
+    par += _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
+    par *= nu
+    par += at
+    par *= par
+    par += perp_sq
+    chif = np.sqrt(par, out=par)
     return np.minimum(chif, 1.0)
 
 
+@ufunc_like
 def rezzolla_2008(
     q: ArrayLike,
     chi1: ArrayLike,
@@ -177,7 +190,7 @@ def rezzolla_2008(
     chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
     q2 = q * q
     perp_sq = (chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi) / (1.0 + q) ** 4
-    return _r08_kernel(q, _nu(q), chi1z, chi2z, perp_sq)
+    return _r08_kernel(q2, _nu(q), chi1z + q2 * chi2z, perp_sq)
 
 
 # --------------------------------------------------------------------------------------------
@@ -215,6 +228,7 @@ def _bkl_par(nu, s_par, w):
     return _L_W0 * nu * (1.0 + 2.0 * w) + s_par
 
 
+@ufunc_like
 def buonanno_kidder_lehner_2008(
     q: ArrayLike,
     chi1: ArrayLike,
