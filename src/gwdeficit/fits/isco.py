@@ -69,14 +69,25 @@ def isco_radius(chi: ArrayLike) -> NDArray[np.float64]:
     Bardeen, Press & Teukolsky 1972, ApJ 178, 347, eq. (2.21):
     Z1 = 1 + (1 - a^2)^(1/3) [(1 + a)^(1/3) + (1 - a)^(1/3)], Z2 = sqrt(3 a^2 + Z1^2),
     r = 3 + Z2 - sign(a) sqrt((3 - Z1)(3 + Z1 + 2 Z2)). Gives 6 at a = 0, 1 at a = 1 (prograde)
-    and 9 at a = -1 (retrograde). Valid for every a in [-1, 1] (exact, no calibration).
+    and 9 at a = -1 (retrograde). Valid for every a in [-1, 1] (exact, no calibration); 3 - Z1
+    is evaluated in a rearranged form that keeps full precision near a = 0.
     """
     a = np.asarray(chi, dtype=np.float64)
     a = np.where(np.abs(a) <= 1.0, a, np.nan)
-    z1 = 1.0 + np.cbrt(1.0 - a * a) * (np.cbrt(1.0 + a) + np.cbrt(1.0 - a))
+    # With p = (1 + a)^(1/3), m = (1 - a)^(1/3): Z1 = 1 + p m (p + m), and p^3 + m^3 = 2 gives
+    # 3 - Z1 = (2 - S)(4 + 2 S + S^2) / 3 for S = p + m, where
+    # 2 - S = 2 a^2 (1 + p + m) / ((p^2 + p m + m^2)(1 + p + p^2)(1 + m + m^2)).
+    # This avoids the cancellation of 3 - Z1 ~ a^2 near a = 0 in the textbook form.
+    p = np.cbrt(1.0 + a)
+    m = np.cbrt(1.0 - a)
+    s_ = p + m
+    two_minus_s = (2.0 * a * a * (1.0 + s_)) / (
+        (p * p + p * m + m * m) * (1.0 + p + p * p) * (1.0 + m + m * m)
+    )
+    three_minus_z1 = two_minus_s * (4.0 + s_ * (2.0 + s_)) / 3.0
+    z1 = 3.0 - three_minus_z1
     z2 = np.sqrt(3.0 * a * a + z1 * z1)
-    # (3 - Z1) can round to a tiny negative number at |a| = 1; it is exactly 0 there.
-    root = np.sqrt(np.maximum((3.0 - z1) * (3.0 + z1 + 2.0 * z2), 0.0))
+    root = np.sqrt(np.maximum(three_minus_z1 * (3.0 + z1 + 2.0 * z2), 0.0))
     return 3.0 + z2 - np.sign(a) * root
 
 
@@ -164,7 +175,7 @@ def isco_w_solve(chi: ArrayLike) -> NDArray[np.float64]:
     is computed in single precision (exp/log, vectorised); three float64 Newton steps then
     give E_isco to <= 3e-11 and w to <= 3e-10 (checked against :func:`isco_energy` in the
     tests; a fourth step reaches rounding level). Several times cheaper than the closed form
-    on whole arrays, and free of its cancellation near chi = 0. For |chi| <= 1.
+    (three cube roots) on whole arrays. For |chi| <= 1.
     """
     return _w_newton(chi)
 
