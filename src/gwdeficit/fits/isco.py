@@ -175,7 +175,7 @@ def isco_w_solve(chi: ArrayLike) -> NDArray[np.float64]:
     is computed in single precision (exp/log, vectorised); three float64 Newton steps then
     give E_isco to <= 3e-11 and w to <= 3e-10 (checked against :func:`isco_energy` in the
     tests; a fourth step reaches rounding level). Several times cheaper than the closed form
-    (three cube roots) on whole arrays. For |chi| <= 1.
+    (two cube roots) on whole arrays. For |chi| <= 1.
     """
     return _w_newton(chi)
 
