@@ -6,6 +6,8 @@ These tests check the data files against their own generator and the issue's spe
 
 from __future__ import annotations
 
+import re
+import shlex
 import subprocess
 import sys
 from pathlib import Path
@@ -16,6 +18,7 @@ import pytest
 from gwdeficit.demo import demo_data_dir
 
 ROOT = Path(__file__).resolve().parents[1]
+README = ROOT / "README.md"
 CAMPAIGN_HEADERS = [
     "event",
     "sample",
@@ -113,7 +116,41 @@ def test_demo_refuses_a_used_folder_without_force(tmp_path):
     assert sorted(p.name for p in used.iterdir()) == ["notes.txt"]
 
 
-def test_demo_runs_every_stage_on_the_bundled_data(tmp_path):
+def _readme_blocks() -> list[tuple[str, str]]:
+    """(language, body) of every fenced code block of the README after the first two.
+
+    The first two are the fresh-machine commands, run by CI and checked by tests/test_readme.py.
+    """
+    text = README.read_text()
+    return re.findall(r"```(\w*)\n(.*?)```", text, flags=re.S)[2:]
+
+
+def _normalise(line: str) -> str:
+    """A README command or output line with the demo data path made concrete."""
+    data = f"{demo_data_dir()}/"
+    line = re.sub(r"\S*/gwdeficit/data_demo/", lambda _m: data, line)
+    return line.rstrip()
+
+
+def _readme_commands() -> tuple[list[str], list[str]]:
+    """Commands shown in the README: (in the tour's code blocks, in inline code)."""
+    blocks = []
+    for lang, body in _readme_blocks():
+        if lang not in ("bash", "console"):
+            continue
+        for ln in body.splitlines():
+            cmd = ln.strip()
+            if lang == "console":  # in console blocks only the "$ " lines are commands
+                if not cmd.startswith("$ "):
+                    continue
+                cmd = cmd[2:]
+            if cmd.startswith("gwdeficit"):
+                blocks.append(_normalise(cmd))
+    inline = re.findall(r"`(gwdeficit [^`]*)`", README.read_text())
+    return blocks, inline
+
+
+def test_demo_runs_every_stage_and_every_readme_command(tmp_path, monkeypatch):
     import numpy as np
     from typer.testing import CliRunner
 
@@ -124,13 +161,16 @@ def test_demo_runs_every_stage_on_the_bundled_data(tmp_path):
     from gwdeficit.schema import DISCLAIMER, META_DISCLAIMER, META_PROVENANCE
     from gwdeficit.workdir import read_parquet
 
-    wd = tmp_path / "demo"
-    res = CliRunner().invoke(app, ["demo", "--workdir", str(wd)])
+    monkeypatch.chdir(tmp_path)
+    runner = CliRunner()
+    res = runner.invoke(app, ["demo"])  # the README's "run the main job" command, as shown
     assert res.exit_code == 0, res.output
     out = res.output
+    wd = Path(demo.DEFAULT_DEMO_WORKDIR)
     # Each stage is printed as the command a user would type, then run.
-    for step in demo.demo_steps(wd):
-        assert f"$ {step.command_line()}" in out
+    steps = [s.command_line() for s in demo.demo_steps(wd)]
+    for line in steps:
+        assert f"$ {line}" in out
     assert f"Everything went into {wd}" in out
 
     # Counts add up: rows read = accepted + rejected, with a reason for each rejected row.
@@ -156,17 +196,47 @@ def test_demo_runs_every_stage_on_the_bundled_data(tmp_path):
     stages = [r["stage"] for r in rates.attrs[META_PROVENANCE]]
     assert stages[:3] == ["ingest", "remnant", "rate"]
     assert (wd / "cosmic.parquet").is_file()
-
     names = {p.name for p in (wd / "figures").iterdir()}
     assert {f"{n}.png" for n in figures_names()} <= names
     assert "cosmic_mass_loss.png" in names
 
-    # --force reruns a stage into the same folder.
-    report = demo.run_demo(wd, force=True, steps=["plot"], echo=lambda s: None)
-    assert [s.name for s in report.steps] == ["plot"]
+    # The README's pasted tour is this run's real output: every line of it (but the marked
+    # elisions and the timing line) appears in the output, in order.
+    (tour,) = [body for lang, body in _readme_blocks() if lang == "console"]
+    got = [" ".join(ln.split()) for ln in out.splitlines()]
+    pos = 0
+    for line in tour.splitlines()[1:]:  # the first line is the command itself
+        want = " ".join(_normalise(line).split())
+        if not want or want.startswith("[...") or want.startswith("time "):
+            continue
+        assert want in got[pos:], f"README tour line not in the demo's output: {line!r}"
+        pos = got.index(want, pos) + 1
+
+    # Every command the README shows is exercised: the stage commands are the demo's steps
+    # (run above); the others are run here, in the README's order.
+    block_cmds, inline_cmds = _readme_commands()
+    for line in block_cmds:
+        assert line == "gwdeficit demo" or line in steps, f"README command not exercised: {line}"
+    for line in inline_cmds:
+        if line == "gwdeficit demo":
+            continue
+        res = runner.invoke(app, shlex.split(line)[1:])
+        assert res.exit_code == 0, f"{line}: {res.output}"
+    assert (wd / "figures" / "budget.pdf").is_file()  # from 'gwdeficit plot ... --pdf --force'
 
 
 def figures_names() -> tuple[str, ...]:
     from gwdeficit.figures import FIGURE_NAMES
 
     return FIGURE_NAMES
+
+
+def test_readme_lists_every_canonical_column_with_its_unit():
+    from gwdeficit.schema import CATALOGUE_COLUMNS, REMNANT_COLUMNS
+
+    rows = [ln for ln in README.read_text().splitlines() if ln.startswith("| `")]
+    for col in (*CATALOGUE_COLUMNS, *REMNANT_COLUMNS):
+        unit = {"-": "-", "": "1"}.get(col.unit, col.unit)
+        hits = [r for r in rows if f"`{col.name}`" in r.split("|")[1]]
+        assert hits, f"README has no table row for column {col.name}"
+        assert any(r.split("|")[2].strip() == unit for r in hits), (col.name, unit, hits)
