@@ -128,3 +128,14 @@ def test_fits_lists_the_registry():
     rows = json.loads(runner.invoke(app, ["fits", "--json"]).stdout)
     assert [r["name"] for r in rows] == [f.name for f in REGISTRY]
     assert {"name", "quantity", "paper", "calibrated", "in_default"} <= set(rows[0])
+
+
+def test_progress_bar_path_on_large_inputs(workdir, monkeypatch):
+    import gwdeficit.cli.remnant as cli_remnant
+
+    monkeypatch.setattr(cli_remnant, "PROGRESS_MIN_ROWS", 10)
+    write_catalogue(workdir / "catalogue.parquet")
+    res = runner.invoke(app, ["remnant"])
+    assert res.exit_code == 0, res.output
+    table = wd.read_parquet(workdir / "remnants.parquet")
+    assert len(table) == 50 and (table["remnant_status"] != "").all()

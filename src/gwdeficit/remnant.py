@@ -103,7 +103,9 @@ class RemnantEstimate(Mapping):
 
     Keys: every name of ``schema.REMNANT_COLUMNS`` except ``remnant_kind``/``remnant_status``,
     and per-fit columns such as ``chif__barausse_rezzolla_2009``. Arrays have the broadcast
-    shape of the inputs.
+    shape of the inputs and are read-only; columns that are equal by definition (for example
+    ``deficit_msun`` and ``erad_msun``, or the default and the only NR fit of a quantity)
+    share memory. Copy an array (``np.array(r["chif"])``) to modify it.
     """
 
     columns: dict[str, NDArray[Any]]
