@@ -197,6 +197,7 @@ def compute_budget(
     progress: Callable[[int, int], None] | None = None,
     source: str = "remnants table",
     inputs: Mapping[str, str] | None = None,
+    engine: Any = None,
 ) -> RateBudget:
     """Fold a remnants table with rate models and volumes into a tidy mass-loss budget.
 
@@ -218,6 +219,11 @@ def compute_budget(
     sources: error sources switched on (schema.ERROR_SOURCES); the others are held fixed.
     progress: called as ``progress(done, total)`` in draws.
     source / inputs: name of the input in messages; input hashes for the provenance record.
+    engine: None (the table in memory), or an out-of-core engine (for example
+      :class:`gwdeficit.stream.StreamPopulations`) providing ``event_kinds()`` and functions
+      ``prepare_population``, ``run_bootstrap`` and ``counts`` with the signatures of
+      :func:`~gwdeficit.resample.prepare_population`, :func:`~gwdeficit.resample.run_bootstrap`
+      and :func:`_counts`; ``remnants`` then only supplies the columns and ``attrs``.
     """
     import pandas as pd
 
@@ -254,7 +260,7 @@ def compute_budget(
     stats = [Stat(name, col) for name, col in MEAN_COLUMNS.items()]
     stats += [Stat(retained_name(v), "vkick_kms", v) for v in speeds]
     columns = list(dict.fromkeys(st.column for st in stats))
-    kinds_of_events = event_kinds(remnants)
+    kinds_of_events = event_kinds(remnants) if engine is None else engine.event_kinds()
     present = _kinds_present(kinds_of_events)
     planned: list[tuple[str, str | None, RateModel]] = []
     defaults_used = False
@@ -291,7 +297,7 @@ def compute_budget(
     left_out: dict[str, str] = {}
     for label, kind, model in planned:
         try:
-            pop = prepare_population(
+            pop = (prepare_population if engine is None else engine.prepare_population)(
                 remnants,
                 columns,
                 selection=selection,
@@ -333,7 +339,8 @@ def compute_budget(
     # per group: cfg name -> (population stat draws dict, rate draws)
     per_group: dict[str, dict[str, tuple[dict[str, NDArray], NDArray]]] = {}
     for i, g in enumerate(groups):
-        res = run_bootstrap(g.pop, stats, configs, n_draws, streams[2 * i], progress=tick)
+        boot = run_bootstrap if engine is None else engine.run_bootstrap
+        res = boot(g.pop, stats, configs, n_draws, streams[2 * i], progress=tick)
         full, fixed = res[0], res[1]
         singles = dict(zip(pop_on, res[2:], strict=True))
         r_draw = (
@@ -443,7 +450,9 @@ def compute_budget(
             }
         )
 
-    counts = _counts(remnants, groups, left_out, kinds_of_events)
+    counts = (_counts if engine is None else engine.counts)(
+        remnants, groups, left_out, kinds_of_events
+    )
     fits_meta = {
         "used": {g.label: g.pop.info.get("fits", {}) for g in groups},
         "left_out": {g.label: g.pop.info.get("fits_left_out", {}) for g in groups},
