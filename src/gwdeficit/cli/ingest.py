@@ -117,7 +117,7 @@ def ingest(
     ] = None,
     batch_rows: Annotated[
         int, typer.Option("--batch-rows", help="Rows read per batch (bounds memory).")
-    ] = 1 << 20,
+    ] = 1 << 18,  # gwdeficit.io.formats.DEFAULT_BATCH_ROWS (not imported: keeps --help fast)
     force: _common.ForceOpt = False,
     as_json: _common.JsonOpt = False,
 ) -> None:

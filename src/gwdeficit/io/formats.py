@@ -37,7 +37,7 @@ from gwdeficit.schema import InputFileError, OptionError
 if TYPE_CHECKING:
     import pyarrow as pa
 
-DEFAULT_BATCH_ROWS = 1 << 20
+DEFAULT_BATCH_ROWS = 1 << 18  # ~100 MB of working arrays per batch
 
 _COMPRESSION = {".gz": "gzip", ".bz2": "bz2", ".xz": "xz", ".zst": "zstd"}
 SUFFIXES: dict[str, str] = {
@@ -296,9 +296,15 @@ def _read_dataset(path: Path, batch_rows: int, fmt: str) -> RawTable:
 
     def batches() -> Iterator[pa.Table]:
         try:
-            # Little read-ahead: memory stays near one batch instead of ~16 batches.
+            # Little read-ahead and no pre-buffering of whole files: memory stays near one
+            # batch instead of growing with the file.
+            extra = (
+                {"fragment_scan_options": ds.ParquetFragmentScanOptions(pre_buffer=False)}
+                if fmt == "parquet"
+                else {}
+            )
             for rb in dataset.to_batches(
-                batch_size=batch_rows, batch_readahead=1, fragment_readahead=1
+                batch_size=batch_rows, batch_readahead=1, fragment_readahead=1, **extra
             ):
                 if rb.num_rows:
                     yield pa.Table.from_batches([rb])
