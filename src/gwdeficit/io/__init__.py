@@ -19,7 +19,7 @@ batch. Results are research inputs; nothing is dropped or altered without being 
 from __future__ import annotations
 
 import os
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -289,9 +289,12 @@ def ingest(
     *,
     force: bool = False,
     options: IngestOptions | None = None,
+    progress: Callable[[int], None] | None = None,
     **kw: Any,
 ) -> dict[str, Any]:
     """Ingest a file into ``<workdir>/catalogue.parquet`` and ``<workdir>/rejects.csv``.
+
+    ``progress(n)`` is called after each batch with the number of rows it read.
 
     Both are written batch by batch to temporary files and renamed into place only when the
     whole input has been read, so an error leaves no partial output. Existing outputs are not
@@ -335,6 +338,8 @@ def ingest(
                     if batch.rejected is not None:
                         batch.rejected.to_csv(fh, header=header, index=False)
                         header = False
+                    if progress is not None:
+                        progress(batch.n_read)
                 if header:
                     fh.write(",".join(_csv_quote(c) for c in stream.reject_columns) + "\n")
             meta = stream.metadata(catalogue=str(out), rejects=str(rej_out))
