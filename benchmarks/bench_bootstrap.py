@@ -12,7 +12,10 @@ generator; two default final-mass fits and two recoil fits, as per-fit columns),
 
 and prints each time, the ratio of (2) to the 10 s target, and the peak resident memory.
 
-    .venv/bin/python benchmarks/bench_bootstrap.py [N_EVENTS] [N_SAMPLES] [B]
+    .venv/bin/python benchmarks/bench_bootstrap.py [N_EVENTS] [N_SAMPLES] [B] [--weighted]
+
+``--weighted`` gives the samples unequal weights, so that the per-event cumulative-weight
+search replaces the equal-weight shortcut.
 """
 
 from __future__ import annotations
@@ -37,7 +40,9 @@ from gwdeficit.schema import META_FITS
 TARGET_S = 10.0
 
 
-def invented_remnants(n_events: int, n_samples: int, seed: int = 20240601) -> pd.DataFrame:
+def invented_remnants(
+    n_events: int, n_samples: int, seed: int = 20240601, weighted: bool = False
+) -> pd.DataFrame:
     rng = np.random.default_rng(seed)
     n = n_events * n_samples
     labels = np.array([f"EV{e:06d}" for e in range(n_events)], dtype=object)
@@ -47,7 +52,7 @@ def invented_remnants(n_events: int, n_samples: int, seed: int = 20240601) -> pd
         {
             "event": labels[np.repeat(np.arange(n_events), n_samples)],
             "sample": np.tile(np.arange(n_samples), n_events),
-            "weight": 1.0,
+            "weight": rng.uniform(0.1, 1.0, n) if weighted else 1.0,
             "kind": "BBH",
             "remnant_status": "estimated",
             "erad_msun": erad,
@@ -69,9 +74,9 @@ def invented_remnants(n_events: int, n_samples: int, seed: int = 20240601) -> pd
     return df
 
 
-def main(n_events: int, n_samples: int, n_draws: int) -> None:
+def main(n_events: int, n_samples: int, n_draws: int, weighted: bool = False) -> None:
     t0 = time.perf_counter()
-    df = invented_remnants(n_events, n_samples)
+    df = invented_remnants(n_events, n_samples, weighted=weighted)
     t_build = time.perf_counter() - t0
     speeds = (50.0, 500.0)
     stats = [
@@ -97,7 +102,10 @@ def main(n_events: int, n_samples: int, n_draws: int) -> None:
     t_budget = time.perf_counter() - t0
     peak_gb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024**2
 
-    print(f"table: {n_events} events x {n_samples} samples = {len(df)} rows, B = {n_draws}")
+    print(
+        f"table: {n_events} events x {n_samples} samples = {len(df)} rows, B = {n_draws}, "
+        + ("unequal sample weights (searchsorted path)" if weighted else "equal sample weights")
+    )
     print(f"build invented table      {t_build:7.2f} s")
     print(f"prepare_population        {t_prep:7.2f} s")
     print(
@@ -114,5 +122,6 @@ def main(n_events: int, n_samples: int, n_draws: int) -> None:
 
 
 if __name__ == "__main__":
-    args = [int(float(a)) for a in sys.argv[1:]]
-    main(*(args + [10_000, 1_000, 2_000][len(args) :]))
+    flags = [a for a in sys.argv[1:] if a.startswith("--")]
+    args = [int(float(a)) for a in sys.argv[1:] if not a.startswith("--")]
+    main(*(args + [10_000, 1_000, 2_000][len(args) :]), weighted="--weighted" in flags)

@@ -289,3 +289,28 @@ def test_an_event_counts_once_in_its_majority_kind():
     pop = prepare_population(df, ["deficit_msun"], kind="NSBH")
     assert pop.n_events == 1 and pop.info["rows_used"] == 4
     assert pop.info["events_mixed_kind"] == 1
+
+
+def test_weighted_pick_equals_a_plain_cumulative_search():
+    # The guide-table search must give exactly the row of a plain inverse-CDF search (numpy
+    # searchsorted over the per-event cumulative keys), including u = 0, u just below 1 and
+    # runs of zero weights; a zero-weight row is never picked.
+    from gwdeficit.resample import _pick_rows
+
+    rng = np.random.default_rng(21)
+    counts = rng.integers(1, 40, 300)
+    vals = [rng.random(c).tolist() for c in counts]
+    wts = [(rng.random(c) ** 4 * (rng.random(c) > 0.4)).tolist() for c in counts]
+    for w in wts:
+        w[0] += 0.01
+        w[-1] = 0.0 if len(w) > 1 else w[-1]  # trailing zero weight
+    pop = prepare_population(_remnants(vals, wts), ["deficit_msun"])
+    ev = rng.integers(0, pop.n_events, (60, pop.n_events))
+    u = rng.random(ev.shape)
+    u[0], u[1] = 0.0, np.nextafter(1.0, 0.0)
+    rows = _pick_rows(pop, ev, u)
+    last = pop.starts[ev] + pop.counts[ev] - 1
+    ref = np.minimum(np.searchsorted(pop.key, ev + u[:, :], side="right"), last)
+    ok = pop.row_weight[ref] > 0  # the plain search may round onto a trailing zero row
+    assert np.array_equal(rows[ok], ref[ok])
+    assert np.all(pop.row_weight[rows] > 0)

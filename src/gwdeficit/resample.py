@@ -17,8 +17,9 @@ which the caller folds in):
 - ``catalogue``: the events are resampled with replacement (uniformly; the weighted mean above
   then honours ``W_e``); off: every event once.
 - ``posterior``: one row of each drawn event is picked with probability proportional to its
-  weight (per-event cumulative weights, one ``searchsorted`` on uniform draws offset by the event
-  index); off: the event's weighted mean ``E_e``.
+  weight (per-event cumulative weights offset by the event index, searched for uniform draws
+  offset the same way, the search confined to the event's rows); off: the event's weighted
+  mean ``E_e``.
 - ``fits``: one final-mass fit (``erad_msun__<fit>``, deficit = that + ``ejected_msun``) and one
   recoil fit (``vkick_kms__<fit>``) are drawn uniformly from the remnant stage's default fits
   that are finite on every row; off: the default mean columns.
@@ -107,6 +108,7 @@ class Population:
     fit_names: dict[str, tuple[str, ...]]
     info: dict[str, Any] = field(default_factory=dict)
     digest: str = ""
+    guide: NDArray[np.int64] | None = None
 
     @property
     def n_rows(self) -> int:
@@ -367,6 +369,7 @@ def prepare_population(
     wmax = np.maximum.reduceat(w, starts)
     wmin = np.minimum.reduceat(w, starts)
     uniform = wmax == wmin
+    guide = None if uniform.all() else _guide_tables(key, starts, counts)
 
     single = nrows_all[ev_index_all] == 1
     event_weight = np.where(single, w[starts], 1.0)
@@ -425,7 +428,41 @@ def prepare_population(
         fit_names=fit_names,
         info=info,
         digest=h.hexdigest() if digest else "",
+        guide=guide,
     )
+
+
+def _guide_tables(
+    key: NDArray[np.float64], starts: NDArray[np.int64], counts: NDArray[np.int64]
+) -> NDArray[np.int64]:
+    """Guide tables of the per-event cumulative weights (indexed search, Chen & Asau 1974).
+
+    For event e with n rows and k = 0..n: ``lo[k]`` is the first row whose key exceeds
+    e + k/n minus a few ulps, ``hi[k]`` the first exceeding e + k/n plus a few ulps, both
+    clipped to the event. A draw u in bucket k = floor(u n) then lies between
+    ``lo[k]`` and ``hi[k + 1]``: a range of about one row on average, so picking a weighted
+    sample costs a couple of memory reads instead of a search over the whole table. Returned
+    as one array of (lo[k], hi[k + 1] + 1) pairs per bucket k = 0..n-1, so that one read gives
+    the search range (packed into one int64 when the table has < 2^31 rows); entry
+    ``starts[e] + k``.
+    """
+    n_ev = starts.size
+    reps = counts + 1
+    ev_g = np.repeat(np.arange(n_ev), reps)
+    k = np.arange(int(reps.sum())) - np.repeat(starts + np.arange(n_ev), reps)
+    base = ev_g.astype(np.float64)
+    t = base + k / counts[ev_g]
+    tol = 4.0 * np.spacing(base + 1.0)
+    first, last = starts[ev_g], starts[ev_g] + counts[ev_g] - 1
+    lo = np.clip(np.searchsorted(key, t - tol, side="right"), first, last)
+    hi = np.clip(np.searchsorted(key, t + tol, side="right"), first, last)
+    bucket = k < counts[ev_g]  # drop each event's k = n entry from the lo side
+    pairs = np.empty((key.size, 2), dtype=np.int64)
+    pairs[:, 0] = lo[bucket]
+    pairs[:, 1] = hi[np.flatnonzero(bucket) + 1] + 1
+    if key.size < 2**31 - 1:  # pack each pair into one int64: a single 8-byte read per pick
+        return pairs[:, 0] | (pairs[:, 1] << 32)
+    return pairs
 
 
 # --------------------------------------------------------------------------------------------
@@ -457,15 +494,72 @@ def _event_means(pop: Population, stats: Sequence[Stat]) -> tuple[NDArray, dict[
     return den, num
 
 
+def _upper_bound(
+    key: NDArray[np.float64], v: NDArray[np.float64], lo: NDArray, hi: NDArray, probes: int = 2
+) -> NDArray:
+    """First index i in [lo, hi) with key[i] > v, for many ranges at once; the answer must
+    lie in its range (the last index of a range is taken without being read).
+
+    Short ranges (the rule with guide tables) are resolved by counting the keys <= v among the
+    first ``probes`` (adjacent, so mostly one cache line); longer ones by a vectorised
+    bisection over the picks still unresolved.
+    """
+    lo = np.asarray(lo, dtype=np.int64).ravel()
+    hi = np.asarray(hi, dtype=np.int64).ravel()
+    v = np.asarray(v, dtype=np.float64).ravel()
+    span = hi - lo - 1  # keys that need reading
+    res = lo.copy()
+    last = key.size - 1
+    for j in range(probes):
+        need = span > j
+        if not need.any():
+            return res
+        res += need & (key.take(np.minimum(lo + j, last)) <= v)
+    idx = np.flatnonzero(span > probes)
+    lo_a, hi_a, v_a = lo[idx], hi[idx] - 1, v[idx]
+    while idx.size:
+        mid = (lo_a + hi_a) >> 1
+        right = key.take(mid) <= v_a
+        lo_a = np.where(right, mid + 1, lo_a)
+        hi_a = np.where(right, hi_a, mid)
+        done = lo_a >= hi_a
+        res[idx[done]] = lo_a[done]
+        keep = ~done
+        idx, lo_a, hi_a, v_a = idx[keep], lo_a[keep], hi_a[keep], v_a[keep]
+    return res
+
+
 def _pick_rows(pop: Population, ev: NDArray[np.int64], u: NDArray[np.float64]) -> NDArray:
-    """One row of each picked event, with probability proportional to the row weights."""
+    """One row of each picked event, with probability proportional to the row weights.
+
+    Equal-weight events: row ``start + floor(u n)``. Others: the first row whose key (event
+    index + cumulative normalised weight) exceeds ``event + u``, searched between the guide
+    entries of u's bucket (:func:`_guide_tables`).
+    """
     starts, counts = pop.starts[ev], pop.counts[ev]
-    rows = starts + np.minimum((u * counts).astype(np.int64), counts - 1)
-    if not pop.uniform.all():
+    k = np.minimum((u * counts).astype(np.int64), counts - 1)
+    rows = starts + k
+    if pop.uniform.all():
+        return rows
+    assert pop.guide is not None
+    if pop.uniform.any():
         sel = ~pop.uniform[ev]
-        v = ev[sel] + u[sel]
-        r = np.searchsorted(pop.key, v, side="right")
-        rows[sel] = np.minimum(r, starts[sel] + counts[sel] - 1)
+        e, k0, uu = ev[sel], rows[sel], u[sel]
+    else:
+        sel, e, k0, uu = None, ev.ravel(), rows.ravel(), u.ravel()
+    if pop.guide.ndim == 1:
+        packed = pop.guide.take(k0)
+        lo, hi = packed & 0xFFFFFFFF, packed >> 32
+    else:
+        lo, hi = pop.guide[k0, 0], pop.guide[k0, 1]
+    # e + u can round up to e + 1 for u just below 1: keep it below, so that the answer is the
+    # event's last row with weight (trailing zero-weight rows share its key e + 1)
+    ef = e.astype(np.float64)
+    v = np.minimum(ef + uu, np.nextafter(ef + 1.0, 0.0))
+    r = _upper_bound(pop.key, v, lo, hi)
+    if sel is None:
+        return r.reshape(rows.shape)
+    rows[sel] = r
     return rows
 
 
