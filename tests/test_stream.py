@@ -183,7 +183,7 @@ def test_events_mode_budget_equals_the_in_memory_budget(posterior, selection):
     _compare_tables(mem.table, got.table, rtol=1e-9)
     assert got.counts == mem.counts
     assert set(got.notes) - set(mem.notes) == {
-        "streamed rate stage (events mode, batches of 17000 rows)"
+        "stream rate stage (events mode, batches of 17000 rows)"
     }
     assert got.meta["gwdeficit.summary"]["engine"]["mode"] == "events"
 

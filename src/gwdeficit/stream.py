@@ -280,6 +280,18 @@ class _RemnantTally:
     status: dict[str, int] = field(default_factory=dict)
     outside_by_fit: dict[str, int] = field(default_factory=dict)
 
+    def merge(self, other: _RemnantTally) -> None:
+        """Add another part's counts (parts are disjoint row ranges)."""
+        for name in ("rows", "estimated", "outside", "bbh", "phi12_drawn", "deficit_sum"):
+            setattr(self, name, getattr(self, name) + getattr(other, name))
+        for mine, theirs in (
+            (self.kinds, other.kinds),
+            (self.status, other.status),
+            (self.outside_by_fit, other.outside_by_fit),
+        ):
+            for k, v in theirs.items():
+                mine[k] = mine.get(k, 0) + v
+
     def add(self, res: pd.DataFrame) -> None:
         from gwdeficit.remnant import STATUS_ESTIMATED
 
@@ -325,12 +337,9 @@ def stream_remnants(
     :func:`gwdeficit.remnant.summarize_remnants` (exact deficit quantiles) plus ``phi12_drawn``.
     Raises what ``compute_remnants`` raises for bad rows (named by ``input_row``).
     """
-    import pyarrow as pa
-    import pyarrow.parquet as pq
 
     from gwdeficit import workdir as wd
-    from gwdeficit.fits.registry import FitRangeWarning, select_fits
-    from gwdeficit.remnant import STATUS_ESTIMATED, _warn_outside, compute_remnants
+    from gwdeficit.fits.registry import select_fits
 
     batch_rows = _check_batch_rows(batch_rows)
     if seed is None or int(seed) < 0:
@@ -343,37 +352,80 @@ def stream_remnants(
     src = str(cat)
     if inputs is None:
         inputs = {src: wd.file_sha256(cat)}
-    tally = _RemnantTally()
-    last_attrs: dict[str, Any] = {}
+    job = RemnantJob(seed, n_total, tuple(chosen), meta_in, src, dict(inputs))
 
-    def run(table: pa.Table, offset: int) -> pa.Table:
+    def parts() -> Iterator[tuple[pa.Table, _RemnantTally, dict[str, Any]]]:
+        offset = 0
+        for table in batches():
+            yield job.run(table, offset)
+            offset += table.num_rows
+
+    return write_remnants(cat, out, job, parts(), batch_rows, force, progress, engine="stream")
+
+
+@dataclass(frozen=True)
+class RemnantJob:
+    """The remnant stage on one batch or partition (picklable: engines ship it to workers)."""
+
+    seed: int
+    n_total: int
+    fits: tuple[str, ...]
+    meta_in: dict[str, Any]
+    source: str
+    inputs: dict[str, str]
+
+    def run(self, table: pa.Table, offset: int) -> tuple[pa.Table, _RemnantTally, dict[str, Any]]:
+        """Rows ``offset ..`` of the catalogue -> (remnant rows, their tally, their metadata)."""
+        import pyarrow as pa
+
+        from gwdeficit.fits.registry import FitRangeWarning
+        from gwdeficit.remnant import compute_remnants
+
         df = table.to_pandas()
-        df.attrs.update(meta_in)
+        df.attrs.update(self.meta_in)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FitRangeWarning)
             res = compute_remnants(
                 df,
-                rng=_RowKeyedDraws(seed, offset, n_total),  # type: ignore[arg-type]
-                fits=chosen,
-                source=src,
-                inputs=inputs,
+                rng=_RowKeyedDraws(self.seed, offset, self.n_total),  # type: ignore[arg-type]
+                fits=list(self.fits),
+                source=self.source,
+                inputs=self.inputs,
             )
+        tally = _RemnantTally()
         tally.add(res)
-        last_attrs.update(res.attrs)
         new = [c for c in res.columns if c not in df.columns]
         extra = pa.Table.from_pandas(res[new], preserve_index=False)
         for name in new:
             table = table.append_column(name, extra.column(name))
-        return table.replace_schema_metadata(None)
+        return table.replace_schema_metadata(None), tally, dict(res.attrs)
 
+
+def write_remnants(
+    cat: Path,
+    out: str | os.PathLike[str],
+    job: RemnantJob,
+    parts: Iterator[tuple[pa.Table, _RemnantTally, dict[str, Any]]],
+    batch_rows: int,
+    force: bool,
+    progress: Progress | None,
+    engine: str,
+) -> dict[str, Any]:
+    """Write the parts (in row order) atomically to ``out``; return the stage summary."""
+    import pyarrow.parquet as pq
+
+    from gwdeficit import workdir as wd
+    from gwdeficit.remnant import STATUS_ESTIMATED, _warn_outside
+
+    tally = _RemnantTally()
+    last_attrs: dict[str, Any] = {}
     out = Path(out)
     with wd.atomic_path(out, force=force, inputs=(cat,)) as tmp:
         writer = None
-        offset = 0
         try:
-            for table in batches():
-                result = run(table, offset)
-                offset += table.num_rows
+            for result, part, attrs in parts:
+                tally.merge(part)
+                last_attrs = attrs
                 if writer is None:
                     labels = [c for c in _LABEL_COLUMNS if c in result.column_names]
                     writer = pq.ParquetWriter(
@@ -387,25 +439,27 @@ def stream_remnants(
                     result = result.cast(writer.schema)
                 writer.write_table(result)
                 if progress is not None:
-                    progress(table.num_rows)
+                    progress(result.num_rows)
             if writer is None:  # an empty catalogue: still a valid, empty remnants table
                 import pyarrow.dataset as ds
 
                 empty = ds.dataset(cat, format="parquet").schema.empty_table()
-                result = run(empty.replace_schema_metadata(None), 0)
+                result, part, last_attrs = job.run(empty.replace_schema_metadata(None), 0)
                 writer = pq.ParquetWriter(
                     tmp, result.schema, compression="zstd", store_schema=False
                 )
                 writer.write_table(result)
-            attrs = _remnant_metadata(last_attrs, meta_in, tally, seed, chosen, inputs, batch_rows)
+            attrs = _remnant_metadata(
+                last_attrs, job.meta_in, tally, job.seed, job.fits, job.inputs, batch_rows, engine
+            )
             writer.add_key_value_metadata(_encoded(attrs))
         finally:
             if writer is not None:
                 writer.close()
         quantiles = _deficit_quantiles(tmp, batch_rows, tally.estimated, STATUS_ESTIMATED)
 
-    _warn_outside(tally.outside, tally.estimated, tally.outside_by_fit, stacklevel=2)
-    return _remnant_summary(tally, quantiles, chosen)
+    _warn_outside(tally.outside, tally.estimated, tally.outside_by_fit, stacklevel=3)
+    return _remnant_summary(tally, quantiles, job.fits)
 
 
 def _encoded(meta: Mapping[str, Any]) -> dict[bytes, bytes]:
@@ -425,6 +479,7 @@ def _remnant_metadata(
     chosen: Sequence[str],
     inputs: Mapping[str, str],
     batch_rows: int,
+    engine: str = "stream",
 ) -> dict[str, Any]:
     """The whole table's metadata from the last batch's: counts summed, one provenance record."""
     from gwdeficit import workdir as wd
@@ -450,7 +505,7 @@ def _remnant_metadata(
         rows=t.rows,
         rows_estimated=t.estimated,
         phi12_drawn=t.phi12_drawn,
-        engine="stream",
+        engine=engine,
         batch_rows=batch_rows,
     )
     out[schema.META_PROVENANCE] = wd.merge_provenance(meta_in, record)
@@ -626,6 +681,20 @@ class StreamPopulation:
         return len(self.fit_names.get(family, ()))
 
 
+@dataclass(frozen=True)
+class RateConfig:
+    """What the per-batch kernels of the rate stage need (picklable, shipped to workers)."""
+
+    source: str
+    selection: str
+    columns: tuple[str, ...]
+    alt_columns: dict[str, str]  # default fit name -> its per-fit column
+    seed: int
+    n_groups: int
+    fits_meta: list[Any] | None = None
+    attrs: dict[str, Any] = field(default_factory=dict)
+
+
 def _row_groups(seed: int, offset: int, n: int, n_groups: int) -> NDArray[np.int64]:
     """Poisson-bootstrap group of rows ``offset .. offset + n - 1`` (counter-based draws).
 
@@ -646,6 +715,293 @@ def _row_groups(seed: int, offset: int, n: int, n_groups: int) -> NDArray[np.int
     return out
 
 
+def _log_factor(df: pd.DataFrame) -> NDArray[np.float64]:
+    """log of the raw inspiral-volume factor Mc^(-15/6) (NaN where Mc is not positive)."""
+    from gwdeficit.convert import chirp_mass
+
+    mc = chirp_mass(df["m1_msun"].to_numpy(np.float64), df["m2_msun"].to_numpy(np.float64))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(np.isfinite(mc) & (mc > 0), (-15.0 / 6.0) * np.log(mc), np.nan)
+
+
+def _is_row_labelled(df: pd.DataFrame) -> bool:
+    """True when every event label is ingest's own ``row<input_row>`` (no event column)."""
+    if "input_row" not in df.columns:
+        return False
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    rows = pa.array(df["input_row"].to_numpy(np.int64))
+    expect = pc.binary_join_element_wise("row", pc.cast(rows, pa.string()), "")
+    got = pa.array(df["event"].astype(str).to_numpy(dtype=object), type=pa.string())
+    return bool(pc.all(pc.equal(got, expect)).as_py())
+
+
+def tally_part(
+    table: pa.Table, offset: int, cfg: RateConfig, rows_mode: bool
+) -> tuple[pd.DataFrame | None, bool]:
+    """Pass 1 on one batch: per key (event; kind in rows mode) sums of per-row counters.
+
+    Returns (sums, whether every label is ``row<input_row>``); in rows mode a batch whose
+    labels are not gives (None, False) and the engine falls back to the events mode.
+    """
+    import pandas as pd
+
+    from gwdeficit.resample import _row_numbers
+
+    df = table.to_pandas()
+    labelled = _is_row_labelled(df) if rows_mode else False
+    if rows_mode and not labelled:
+        return None, False
+    w = pd.to_numeric(df["weight"], errors="coerce").to_numpy(np.float64)
+    bad = np.flatnonzero(~(np.isfinite(w) & (w >= 0)))
+    if bad.size:
+        raise schema.BadRowsError(
+            cfg.source, "weight", "weight is not a finite number >= 0", _row_numbers(df, bad)
+        )
+    kind = df["kind"].astype(str).to_numpy(dtype=object)
+    unknown = sorted(set(np.unique(kind)) - set(schema.KINDS))
+    if unknown:
+        raise SchemaError(
+            f"{cfg.source}: kind(s) {', '.join(map(repr, unknown))} not one of "
+            f"{', '.join(schema.KINDS)}"
+        )
+    status = df["remnant_status"].astype(str)
+    used = ~status.str.startswith(_NOT_EST).to_numpy()
+    counted = used & (w > 0) if rows_mode else used
+    cols: dict[str, Any] = {
+        "rows": np.ones(w.size, dtype=np.int64),
+        "used": used.astype(np.int64),
+        "wused": np.where(used, w, 0.0),
+        "used_zero": (used & (w == 0)).astype(np.int64),
+    }
+    for k in schema.KINDS:
+        is_k = kind == k
+        cols[f"w:{k}"] = np.where(is_k, w, 0.0)
+        cols[f"n:{k}"] = is_k.astype(np.int64)
+    for name, col in cfg.alt_columns.items():
+        x = df[col].to_numpy(np.float64)
+        cols[f"bad:{name}"] = (counted & ~np.isfinite(x)).astype(np.int64)
+    for c in cfg.columns:
+        cols[f"nan:{c}"] = (counted & np.isnan(df[c].to_numpy(np.float64))).astype(np.int64)
+    if "in_fit_range" in df.columns:
+        cols["outside"] = (counted & ~df["in_fit_range"].to_numpy(dtype=bool)).astype(np.int64)
+    if cfg.selection == "inspiral-volume":
+        lf = _log_factor(df)
+        ok = counted & np.isfinite(lf)
+        cols["logs"] = np.where(ok, lf, 0.0)
+        cols["nlogs"] = ok.astype(np.int64)
+    frame = pd.DataFrame(cols)
+    if not used.all():
+        dummies = pd.get_dummies(status.where(~used), prefix="st", prefix_sep="|", dtype=np.int64)
+        frame = pd.concat([frame, dummies.set_axis(frame.index)], axis=1)
+    key = df["kind"].astype(str) if rows_mode else df["event"].astype(str)
+    return frame.groupby(key.to_numpy(), sort=False).sum(), labelled
+
+
+def rows_part(
+    table: pa.Table,
+    offset: int,
+    cfg: RateConfig,
+    pops: Sequence[StreamPopulation],
+    stats: Sequence[Any],
+) -> list[tuple[NDArray, dict[str, NDArray]]]:
+    """Rows mode on one batch: per population and Poisson group, sum of W s and of W s y."""
+    import pandas as pd
+
+    from gwdeficit.resample import _COLUMN_FAMILY, FIT_FAMILIES, _indicator, _row_numbers
+
+    df = table.to_pandas()
+    gid = _row_groups(cfg.seed, offset, len(df), cfg.n_groups)
+    K = cfg.n_groups
+    w = pd.to_numeric(df["weight"], errors="coerce").to_numpy(np.float64)
+    used = ~df["remnant_status"].astype(str).str.startswith(_NOT_EST).to_numpy()
+    kinds = df["kind"].astype(str).to_numpy(dtype=object)
+    out = []
+    for pop in pops:
+        keep = used & (w > 0)
+        if pop.kind is not None:
+            keep &= kinds == pop.kind
+        idx = np.flatnonzero(keep)
+        if cfg.selection == "none":
+            ws = w[idx]
+        elif cfg.selection == "inspiral-volume":
+            lf = _log_factor(df.iloc[idx])
+            bad = np.flatnonzero(~np.isfinite(lf))
+            if bad.size:
+                raise schema.BadRowsError(
+                    cfg.source, "m1_msun", "no positive chirp mass", _row_numbers(df, idx[bad])
+                )
+            ws = w[idx] * np.exp(lf - pop.log_factor_mean)
+        else:
+            vt = pd.to_numeric(df["vt_gpc3_yr"], errors="coerce").to_numpy(np.float64)[idx]
+            bad = np.flatnonzero(~(np.isfinite(vt) & (vt > 0)))
+            if bad.size:
+                raise schema.BadRowsError(
+                    cfg.source,
+                    "vt_gpc3_yr",
+                    "sensitive volume-time is not a positive number",
+                    _row_numbers(df, idx[bad]),
+                )
+            ws = w[idx] / vt
+        g = gid[idx]
+        den = np.bincount(g, weights=ws, minlength=K)
+        nums: dict[str, NDArray] = {}
+        for st in stats:
+            fam = _COLUMN_FAMILY.get(st.column)
+            names = pop.fit_names.get(fam, ()) if fam else ()
+            alts = [df[st.column].to_numpy(np.float64)[idx]]
+            for name in names:
+                col = f"{FIT_FAMILIES[fam]}{schema.PER_FIT_SEPARATOR}{name}"
+                alt = df[col].to_numpy(np.float64)[idx]
+                if st.column == "deficit_msun":
+                    alt = alt + df["ejected_msun"].to_numpy(np.float64)[idx]
+                alts.append(alt)
+            arr = np.empty((K, len(alts)))
+            for j, x in enumerate(alts):
+                y = x if st.threshold is None else _indicator(x, st.threshold)
+                arr[:, j] = np.bincount(g, weights=ws * y, minlength=K)
+            nums[st.name] = arr
+        out.append((den, nums))
+    return out
+
+
+def _generator(state: Mapping[str, Any]) -> np.random.Generator:
+    bg = getattr(np.random, state["bit_generator"])()
+    bg.state = state
+    return np.random.Generator(bg)
+
+
+def bootstrap_ingredients(
+    rng_state: Mapping[str, Any],
+    n_draws: int,
+    n_ev: int,
+    n_fm: int,
+    n_rc: int,
+    chunk: int,
+) -> Iterator[tuple[int, int, NDArray, NDArray, NDArray, NDArray]]:
+    """The random ingredients of :func:`gwdeficit.resample.run_bootstrap`, chunk by chunk.
+
+    Same generator state, same order (sorted event picks, uniforms, fit choices), so any
+    process can regenerate them: yields (b0, m, ev_cat, u_post, f_fm, f_rc).
+    """
+    rng = _generator(rng_state)
+    idx_type = np.int32 if n_ev < 2**31 - 1 else np.int64
+    for b0 in range(0, n_draws, chunk):
+        m = min(chunk, n_draws - b0)
+        ev_cat = rng.integers(0, n_ev, size=(m, n_ev), dtype=idx_type)
+        ev_cat.sort(axis=1)
+        u_post = rng.random((m, n_ev))
+        f_fm = rng.integers(0, max(n_fm, 1), size=m)
+        f_rc = rng.integers(0, max(n_rc, 1), size=m)
+        yield b0, m, ev_cat, u_post, f_fm, f_rc
+
+
+def _alternatives(cfg: frozenset[str], f_fm, f_rc, n_fm: int, n_rc: int, m: int) -> dict:
+    zero = np.zeros(m, dtype=np.int64)
+    on = "fits" in cfg
+    return {
+        "final_mass": (1 + f_fm) if (on and n_fm) else zero,
+        "recoil": (1 + f_rc) if (on and n_rc) else zero,
+        None: zero,
+    }
+
+
+def group_part(
+    df: pd.DataFrame,
+    cfg: RateConfig,
+    pop: StreamPopulation,
+    stats: Sequence[Any],
+    cfgs: Sequence[frozenset[str]],
+    n_draws: int,
+    rng_state: Mapping[str, Any],
+    chunk: int,
+    offset: int,
+    n_expected: int,
+    kinds: pd.Series,
+) -> dict[str, Any]:
+    """Events mode on one event group (all rows of its events).
+
+    Prepares the group with :func:`gwdeficit.resample.prepare_population`, then returns its
+    events' means (posterior off), weights, and for every posterior-on configuration the
+    group's partial numerators and denominators of each draw (picks of the global ingredients
+    that fall on the group's events, global codes ``offset .. offset + n_expected - 1``).
+    """
+    from gwdeficit.resample import _COLUMN_FAMILY, _event_means, _indicator, _pick_rows
+    from gwdeficit.resample import prepare_population as prepare
+
+    df.attrs.update(cfg.attrs)
+    if cfg.fits_meta is not None:
+        df.attrs[schema.META_FITS] = cfg.fits_meta
+    cols = list(pop.columns)
+    if cfg.selection == "inspiral-volume":
+        cols += ["m1_msun", "m2_msun"]
+    gp = prepare(
+        df, cols, selection=cfg.selection, kind=pop.kind, source=cfg.source, kinds_of_events=kinds
+    )
+    del df
+    if gp.n_events != n_expected:
+        raise RuntimeError("event group prepared with an unexpected number of events")
+    if cfg.selection == "inspiral-volume":
+        from gwdeficit.convert import chirp_mass
+
+        mc = chirp_mass(gp.values["m1_msun"][:, 0], gp.values["m2_msun"][:, 0])
+        gp = replace(gp, row_factor=np.exp((-15.0 / 6.0) * np.log(mc) - pop.log_factor_mean))
+    n_ev, n_g, o = pop.n_events, gp.n_events, offset
+    n_fm = pop.n_alternatives("final_mass")
+    n_rc = pop.n_alternatives("recoil")
+    den_e, num_e = _event_means(gp, stats)
+    post = [i for i, c in enumerate(cfgs) if "posterior" in c]
+    num = {i: {st.name: np.zeros(n_draws) for st in stats} for i in post}
+    den = {i: np.zeros(n_draws) for i in post}
+    flat = {c: v.ravel() for c, v in gp.values.items()}
+    width = {c: v.shape[1] for c, v in gp.values.items()}
+    if post:
+        for b0, m, ev, u, f_fm, f_rc in bootstrap_ingredients(
+            rng_state, n_draws, n_ev, n_fm, n_rc, chunk
+        ):
+            for i in post:
+                if "catalogue" in cfgs[i]:
+                    bi, ji = np.nonzero((ev >= o) & (ev < o + n_g))
+                    evl = ev[bi, ji].astype(np.int64) - o
+                    uu = u[bi, ji]
+                else:
+                    bi = np.repeat(np.arange(m), n_g)
+                    evl = np.tile(np.arange(n_g, dtype=np.int64), m)
+                    uu = u[:, o : o + n_g].ravel()
+                rows = _pick_rows(gp, evl, uu)
+                wgt = gp.event_weight[evl] * gp.row_factor[rows]
+                den[i][b0 : b0 + m] += np.bincount(bi, weights=wgt, minlength=m)
+                alt = _alternatives(cfgs[i], f_fm, f_rc, n_fm, n_rc, m)
+                for st in stats:
+                    k = width[st.column]
+                    a = alt[_COLUMN_FAMILY.get(st.column)]
+                    pos = rows * k + a[bi] if k > 1 else rows
+                    x = flat[st.column].take(pos)
+                    y = x if st.threshold is None else _indicator(x, st.threshold)
+                    num[i][st.name][b0 : b0 + m] += np.bincount(bi, weights=wgt * y, minlength=m)
+    return {
+        "offset": o,
+        "n": n_g,
+        "den_e": den_e,
+        "num_e": num_e,
+        "w_e": gp.event_weight,
+        "num": num,
+        "den": den,
+    }
+
+
+def _merge_sums(parts: Sequence[pd.DataFrame | None]) -> pd.DataFrame | None:
+    import pandas as pd
+
+    frames = [p for p in parts if p is not None]
+    if not frames:
+        return None
+    if len(frames) == 1:
+        return frames[0]
+    return pd.concat(frames).fillna(0).groupby(level=0, sort=False).sum()
+
+
 class StreamPopulations:
     """The rate stage's data steps on a remnants Parquet file or folder, out of core.
 
@@ -653,8 +1009,11 @@ class StreamPopulations:
     :func:`stream_budget`). ``mode``: ``"events"``, ``"rows"`` or ``"auto"`` (rows when every
     label is ingest's own ``row<input_row>``, i.e. the table had no event column, and there
     are at least :data:`ROWS_MODE_MIN_ROWS` rows). See the module docstring for the methods and
-    the memory bounds. Use as a context manager (the temporary files go at exit).
+    the memory bounds. Use as a context manager (the temporary files go at exit). Subclasses
+    (the Dask engine) replace :meth:`map_batches` and :meth:`group_results`.
     """
+
+    engine_name = "stream"
 
     def __init__(
         self,
@@ -672,6 +1031,8 @@ class StreamPopulations:
         progress: Callable[[str, int | None], Any] | None = None,
         tmpdir: str | os.PathLike[str] | None = None,
     ) -> None:
+        import pandas as pd
+
         from gwdeficit.resample import SELECTIONS, default_fits
 
         if mode not in ("auto", "events", "rows"):
@@ -694,8 +1055,6 @@ class StreamPopulations:
         self._tmp: tempfile.TemporaryDirectory | None = None
         self.n_rows, _, self.names = _open(self.path, self.batch_rows, [])
         self.attrs = read_metadata(self.path)
-        import pandas as pd
-
         self.frame = pd.DataFrame(columns=self.names)
         self.frame.attrs.update(self.attrs)
         self.fits_by_family = default_fits(self.frame)
@@ -705,9 +1064,18 @@ class StreamPopulations:
         self._pops: list[StreamPopulation] = []
         self._spilled: list[Path] | None = None
         self._group_event_ranges: list[tuple[int, int]] = []
-        self._row_sums: dict[int, tuple[NDArray, dict[str, NDArray]]] | None = None
+        self._row_sums: list[tuple[NDArray, dict[str, NDArray]]] | None = None
+        self._stats: list[Any] = []
+        self.config = RateConfig(
+            source=self.source,
+            selection=selection,
+            columns=self.columns,
+            alt_columns=self._alt_columns(),
+            seed=self.seed,
+            n_groups=self.n_groups,
+        )
 
-    # -- context ------------------------------------------------------------------------------
+    # -- context and plumbing -------------------------------------------------------------------
 
     def __enter__(self) -> StreamPopulations:
         return self
@@ -736,7 +1104,15 @@ class StreamPopulations:
             with self._progress(what, total) as advance:
                 yield advance
 
-    # -- pass 1: tallies per event (events mode) or per kind (rows mode) ------------------------
+    def map_batches(
+        self, columns: Sequence[str], fn: Callable[..., Any], *args: Any
+    ) -> Iterator[tuple[int, Any]]:
+        """Yield (rows, fn(table, offset, *args)) for each batch of the table, in row order."""
+        _, batches, _ = _open(self.path, self.batch_rows, list(dict.fromkeys(columns)))
+        offset = 0
+        for table in batches():
+            yield table.num_rows, fn(table, offset, *args)
+            offset += table.num_rows
 
     def _alt_columns(self) -> dict[str, str]:
         """Per default fit used by the statistics: its per-fit column."""
@@ -763,110 +1139,41 @@ class StreamPopulations:
         extra = [c for c in ("input_row", "in_fit_range") if c in self.names]
         return list(dict.fromkeys([*need, *extra, *self._alt_columns().values()]))
 
-    def _log_factor(self, df: pd.DataFrame) -> NDArray[np.float64]:
-        """log of the raw inspiral-volume factor Mc^(-15/6) (NaN where Mc is not positive)."""
-        from gwdeficit.convert import chirp_mass
-
-        mc = chirp_mass(df["m1_msun"].to_numpy(np.float64), df["m2_msun"].to_numpy(np.float64))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(np.isfinite(mc) & (mc > 0), (-15.0 / 6.0) * np.log(mc), np.nan)
-
-    def _row_frame(self, df: pd.DataFrame, rows_mode: bool) -> pd.DataFrame:
-        """Per-row counters of one batch (summed per key afterwards)."""
-        import pandas as pd
-
-        from gwdeficit.resample import _row_numbers
-
-        w = pd.to_numeric(df["weight"], errors="coerce").to_numpy(np.float64)
-        bad = np.flatnonzero(~(np.isfinite(w) & (w >= 0)))
-        if bad.size:
-            raise schema.BadRowsError(
-                self.source, "weight", "weight is not a finite number >= 0", _row_numbers(df, bad)
-            )
-        kind = df["kind"].astype(str).to_numpy(dtype=object)
-        unknown = sorted(set(np.unique(kind)) - set(schema.KINDS))
-        if unknown:
-            raise SchemaError(
-                f"{self.source}: kind(s) {', '.join(map(repr, unknown))} not one of "
-                f"{', '.join(schema.KINDS)}"
-            )
-        status = df["remnant_status"].astype(str)
-        used = ~status.str.startswith(_NOT_EST).to_numpy()
-        counted = used & (w > 0) if rows_mode else used
-        cols: dict[str, Any] = {
-            "rows": np.ones(w.size, dtype=np.int64),
-            "used": used.astype(np.int64),
-            "wused": np.where(used, w, 0.0),
-            "used_zero": (used & (w == 0)).astype(np.int64),
-        }
-        for k in schema.KINDS:
-            is_k = kind == k
-            cols[f"w:{k}"] = np.where(is_k, w, 0.0)
-            cols[f"n:{k}"] = is_k.astype(np.int64)
-        for name, col in self._alt_columns().items():
-            x = df[col].to_numpy(np.float64)
-            cols[f"bad:{name}"] = (counted & ~np.isfinite(x)).astype(np.int64)
-        for c in self.columns:
-            cols[f"nan:{c}"] = (counted & np.isnan(df[c].to_numpy(np.float64))).astype(np.int64)
-        if "in_fit_range" in df.columns:
-            cols["outside"] = (counted & ~df["in_fit_range"].to_numpy(dtype=bool)).astype(np.int64)
-        if self.selection == "inspiral-volume":
-            lf = self._log_factor(df)
-            ok = counted & np.isfinite(lf)
-            cols["logs"] = np.where(ok, lf, 0.0)
-            cols["nlogs"] = ok.astype(np.int64)
-        frame = pd.DataFrame(cols)
-        if not used.all():
-            dummies = pd.get_dummies(
-                status.where(~used), prefix="st", prefix_sep="|", dtype=np.int64
-            )
-            frame = pd.concat([frame, dummies.set_axis(frame.index)], axis=1)
-        return frame
-
-    @staticmethod
-    def _is_row_labelled(df: pd.DataFrame) -> bool:
-        if "input_row" not in df.columns:
-            return False
-        import pyarrow as pa
-        import pyarrow.compute as pc
-
-        rows = pa.array(df["input_row"].to_numpy(np.int64))
-        expect = pc.binary_join_element_wise("row", pc.cast(rows, pa.string()), "")
-        got = pa.array(df["event"].astype(str).to_numpy(dtype=object), type=pa.string())
-        return bool(pc.all(pc.equal(got, expect)).as_py())
+    # -- pass 1 ---------------------------------------------------------------------------------
 
     def _scan(self) -> None:
-
         if self._tallies is not None:
             return
-        _, batches, _ = _open(self.path, self.batch_rows, self._scan_columns())
         rows_mode = self.mode == "rows" or (
             self.mode == "auto" and self.n_rows >= ROWS_MODE_MIN_ROWS
         )
-        parts: list[pd.DataFrame] = []
-        acc: pd.DataFrame | None = None
+        acc = None
+        parts = []
         with self._bar("rate: tallies", self.n_rows) as advance:
-            for table in batches():
-                df = table.to_pandas()
-                if rows_mode and self.mode == "auto" and not self._is_row_labelled(df):
+            for n, (part, labelled) in self.map_batches(
+                self._scan_columns(), tally_part, self.config, rows_mode
+            ):
+                if rows_mode and not labelled:
+                    if self.mode == "rows":
+                        raise OptionError(
+                            f"{self.source}: the rows mode needs every event label to be "
+                            "row<input_row> (a table without an event column)"
+                        )
                     self.mode = "events"
-                    self._tallies = None
                     return self._scan()
-                key = df["kind"].astype(str) if rows_mode else df["event"].astype(str)
-                frame = self._row_frame(df, rows_mode)
-                parts.append(frame.groupby(key.to_numpy(), sort=False).sum())
+                parts.append(part)
                 if len(parts) >= 16:
                     acc = _merge_sums([acc, *parts])
                     parts = []
-                advance(table.num_rows)
+                advance(n)
         acc = _merge_sums([acc, *parts])
         if acc is None:
             raise SchemaError(f"{self.source}: the remnants table has no rows")
         self.mode = "rows" if rows_mode else "events"
-        self._tallies = acc.sort_index()
+        self._tallies = acc.fillna(0).sort_index()
         self._status_cols = sorted(c for c in acc.columns if c.startswith("st|"))
 
-    # -- the engine interface of compute_budget -----------------------------------------------
+    # -- the engine interface of compute_budget -------------------------------------------------
 
     def event_kinds(self) -> pd.Series:
         """Majority kind of each event (rows mode: each kind present once)."""
@@ -912,32 +1219,31 @@ class StreamPopulations:
         t = self._tallies
         kinds = self.event_kinds() if kinds_of_events is None else kinds_of_events
         rows_mode = self.mode == "rows"
+        col = {c: t[c].to_numpy() for c in t.columns}
         if kind is None:
             keep = np.ones(len(t), dtype=bool)
         elif rows_mode:
-            keep = t.index == kind
+            keep = np.asarray(t.index == kind)
         else:
             keep = kinds.reindex(t.index).to_numpy() == kind
-        info: dict[str, Any] = {"rows_in": int(t["rows"].to_numpy()[keep].sum())}
+        info: dict[str, Any] = {"rows_in": int(col["rows"][keep].sum())}
         if kind is None:
             info["rows_in"] = self.n_rows
+        elif rows_mode:
+            info["events_mixed_kind"] = 0
         else:
-            if rows_mode:
-                info["events_mixed_kind"] = 0
-            else:
-                n_kinds = sum((t[f"n:{k}"].to_numpy() > 0).astype(int) for k in schema.KINDS)
-                info["events_mixed_kind"] = int((keep & (n_kinds > 1)).sum())
-        rows = t["rows"].to_numpy()
-        used = t["used"].to_numpy()
+            n_kinds = sum((col[f"n:{k}"] > 0).astype(int) for k in schema.KINDS)
+            info["events_mixed_kind"] = int((keep & (n_kinds > 1)).sum())
+        rows, used = col["rows"], col["used"]
         info["rows_not_estimated"] = int((rows - used)[keep].sum())
         info["not_estimated_reasons"] = {
-            c.split("|", 1)[1]: int(t[c].to_numpy()[keep].sum())
+            c.split("|", 1)[1]: int(col[c][keep].sum())
             for c in self._status_cols
-            if t[c].to_numpy()[keep].sum() > 0
+            if col[c][keep].sum() > 0
         }
         if rows_mode:
             info["events_in"] = info["rows_in"]
-            zero_rows = int(t["used_zero"].to_numpy()[keep].sum())
+            zero_rows = int(col["used_zero"][keep].sum())
             info["events_zero_weight"] = zero_rows
             info["rows_zero_weight_events"] = zero_rows
             present = keep.copy()
@@ -945,11 +1251,10 @@ class StreamPopulations:
             n_events = rows_used
         else:
             info["events_in"] = int(keep.sum())
-            wsum = t["wused"].to_numpy()
-            zero_ev = keep & (used > 0) & (wsum <= 0)
+            zero_ev = keep & (used > 0) & (col["wused"] <= 0)
             info["events_zero_weight"] = int(zero_ev.sum())
             info["rows_zero_weight_events"] = int(used[zero_ev].sum())
-            present = keep & (used > 0) & (wsum > 0)
+            present = keep & (used > 0) & (col["wused"] > 0)
             rows_used = int(used[present].sum())
             n_events = int(present.sum())
         if rows_used == 0:
@@ -965,7 +1270,7 @@ class StreamPopulations:
                 continue
             ok = []
             for name in self.fits_by_family[fam]:
-                n_bad = int(t[f"bad:{name}"].to_numpy()[present].sum())
+                n_bad = int(col[f"bad:{name}"][present].sum())
                 if n_bad == 0:
                     ok.append(name)
                 else:
@@ -975,23 +1280,23 @@ class StreamPopulations:
         info["fits_left_out"] = ineligible
         nan_values = {}
         for c in dict.fromkeys(columns):
-            n_nan = int(t[f"nan:{c}"].to_numpy()[present].sum())
+            n_nan = int(col[f"nan:{c}"][present].sum())
             if n_nan:
                 nan_values[c] = n_nan
         info.update(
             rows_used=rows_used,
             events_used=n_events,
             rows_outside_calibration=(
-                int(t["outside"].to_numpy()[present].sum()) if "outside" in t.columns else None
+                int(col["outside"][present].sum()) if "outside" in col else None
             ),
             nan_values=nan_values,
             selection=selection,
         )
         log_mean = 0.0
         if selection == "inspiral-volume":
-            n_logs = int(t["nlogs"].to_numpy()[present].sum())
+            n_logs = int(col["nlogs"][present].sum())
             if n_logs:
-                log_mean = float(t["logs"].to_numpy()[present].sum() / n_logs)
+                log_mean = float(col["logs"][present].sum() / n_logs)
         h = hashlib.sha256(
             f"{self.digest}|{self.mode}|{kind}|{selection}|{','.join(columns)}".encode()
         ).hexdigest()
@@ -1053,35 +1358,31 @@ class StreamPopulations:
                 raise SchemaError(f"statistic {st.name!r}: column {st.column!r} was not prepared")
         picks = CHUNK_PICKS if chunk_picks is None else int(chunk_picks)
         if self.mode == "rows":
-            return self._rows_bootstrap(pop, stats, cfgs, n_draws, rng, progress, picks)
-        return self._events_bootstrap(pop, stats, cfgs, n_draws, rng, progress, picks)
+            return self._rows_bootstrap(pop, list(stats), cfgs, n_draws, rng, progress, picks)
+        return self._events_bootstrap(pop, list(stats), cfgs, n_draws, rng, progress, picks)
 
     # -- events mode ----------------------------------------------------------------------------
 
-    def _restricted_attrs(self, pop: StreamPopulation) -> dict[str, Any]:
-        """Metadata whose fit list names only the population's eligible default fits."""
-        attrs = dict(self.attrs)
+    def _group_config(self, pop: StreamPopulation) -> RateConfig:
+        """Config whose fit list names only the population's eligible default fits."""
         eligible = {n for names in pop.fit_names.values() for n in names}
-        fits = attrs.get(schema.META_FITS)
+        fits = self.attrs.get(schema.META_FITS)
+        meta = None
         if isinstance(fits, list):
-            attrs[schema.META_FITS] = [
+            meta = [
                 f
                 for f in fits
                 if not (isinstance(f, Mapping) and f.get("in_default")) or f.get("name") in eligible
             ]
-        return attrs
+        attrs = {k: v for k, v in self.attrs.items() if k != schema.META_FITS}
+        return replace(self.config, fits_meta=meta, attrs=attrs)
 
-    def _spill(self) -> None:
-        """Write the needed columns into one Arrow file per event group (sorted labels)."""
-        import pandas as pd
-        import pyarrow as pa
-
-        if self._spilled is not None:
+    def _plan_groups(self) -> None:
+        """Event groups: consecutive sorted labels, at most ``group_rows`` rows (256 at most)."""
+        if self._group_event_ranges:
             return
-        t = self._tallies
-        counts = t["rows"].to_numpy()
-        n_groups_max = 256
-        limit = max(self.group_rows, -(-int(counts.sum()) // n_groups_max))
+        counts = self._tallies["rows"].to_numpy()
+        limit = max(self.group_rows, -(-int(counts.sum()) // 256))
         group_of = np.empty(counts.size, dtype=np.int64)
         g, filled = 0, 0
         for i, c in enumerate(counts.tolist()):
@@ -1091,24 +1392,36 @@ class StreamPopulations:
             filled += c
         n_groups = g + 1 if counts.size else 0
         edges = np.searchsorted(group_of, np.arange(n_groups + 1))
+        self._group_of = group_of
         self._group_event_ranges = [(int(edges[i]), int(edges[i + 1])) for i in range(n_groups)]
+
+    def _group_columns(self) -> list[str]:
         cols = self._scan_columns()
         for c in ("sample", "vt_gpc3_yr"):
             if c in self.names and c not in cols:
                 cols.append(c)
-        _, batches, _ = _open(self.path, self.batch_rows, cols)
-        index = pd.Index(t.index.to_numpy(dtype=object))
+        return cols
+
+    def _spill(self) -> None:
+        """Write the needed columns into one Arrow file per event group."""
+        import pandas as pd
+        import pyarrow as pa
+
+        if self._spilled is not None:
+            return
+        self._plan_groups()
+        index = pd.Index(self._tallies.index.to_numpy(dtype=object))
         folder = self._tmpdir()
-        paths = [folder / f"group-{i:04d}.arrow" for i in range(n_groups)]
+        paths = [folder / f"group-{i:04d}.arrow" for i in range(len(self._group_event_ranges))]
         writers: dict[int, Any] = {}
+        _, batches, _ = _open(self.path, self.batch_rows, self._group_columns())
         try:
             with self._bar("rate: grouping events", self.n_rows) as advance:
                 for table in batches():
                     labels = table.column("event").to_numpy(zero_copy_only=False).astype(str)
-                    gid = group_of[index.get_indexer(labels)]
+                    gid = self._group_of[index.get_indexer(labels)]
                     order = np.argsort(gid, kind="stable")
-                    gs = gid[order]
-                    bounds = np.flatnonzero(np.diff(gs)) + 1
+                    bounds = np.flatnonzero(np.diff(gid[order])) + 1
                     for part in np.split(order, bounds):
                         if not part.size:
                             continue
@@ -1123,263 +1436,35 @@ class StreamPopulations:
                 w.close()
         self._spilled = paths
 
-    def _read_group(self, i: int, pop: StreamPopulation) -> pd.DataFrame | None:
+    def _read_group(self, i: int) -> pd.DataFrame:
         import pyarrow as pa
 
-        path = self._spilled[i]
-        if not path.exists():
-            return None
-        with pa.memory_map(str(path)) as src:
-            df = pa.ipc.open_file(src).read_all().to_pandas()
-        df.attrs.update(self._restricted_attrs(pop))
-        return df
+        with pa.memory_map(str(self._spilled[i])) as src:
+            return pa.ipc.open_file(src).read_all().to_pandas()
+
+    def group_results(self, pop: StreamPopulation, *args: Any) -> Iterator[tuple[int, Any]]:
+        """Yield (rows, :func:`group_part` result) for every event group holding events of
+        ``pop``; ``args`` follow ``group_part``'s (stats, cfgs, n_draws, rng_state, chunk)."""
+        self._spill()
+        cfg = self._group_config(pop)
+        kinds = self.event_kinds()
+        rows = self._tallies["rows"].to_numpy()
+        offset = 0
+        for gi, (e0, e1) in enumerate(self._group_event_ranges):
+            n_g = int(pop.present[e0:e1].sum())
+            rows_g = int(rows[e0:e1].sum())
+            if n_g:
+                df = self._read_group(gi)
+                yield rows_g, group_part(df, cfg, pop, *args, offset, n_g, kinds)
+            else:
+                yield rows_g, None
+            offset += n_g
 
     def _events_bootstrap(
         self,
         pop: StreamPopulation,
-        stats: Sequence[Any],
-        cfgs: Sequence[frozenset[str]],
-        n_draws: int,
-        rng: np.random.Generator,
-        progress: Callable[[int], None] | None,
-        chunk_picks: int,
-    ) -> list[dict[str, NDArray[np.float64]]]:
-        from gwdeficit.resample import (
-            _COLUMN_FAMILY,
-            _event_means,
-            _indicator,
-            _pick_rows,
-            prepare_population,
-        )
-
-        self._spill()
-        n_ev = pop.n_events
-        n_fm = pop.n_alternatives("final_mass")
-        n_rc = pop.n_alternatives("recoil")
-        chunk = max(1, int(chunk_picks) // max(n_ev, 1))
-        idx_type = np.int32 if n_ev < 2**31 - 1 else np.int64
-        folder = self._tmpdir()
-        tag = f"{id(pop)}-{len(os.listdir(folder))}"
-        ev_all = np.lib.format.open_memmap(
-            folder / f"ev-{tag}.npy", mode="w+", dtype=idx_type, shape=(n_draws, n_ev)
-        )
-        u_all = np.lib.format.open_memmap(
-            folder / f"u-{tag}.npy", mode="w+", dtype=np.float64, shape=(n_draws, n_ev)
-        )
-        f_fm = np.empty(n_draws, dtype=np.int64)
-        f_rc = np.empty(n_draws, dtype=np.int64)
-        # The random ingredients of run_bootstrap, drawn in the same order from the same stream.
-        for b0 in range(0, n_draws, chunk):
-            m = min(chunk, n_draws - b0)
-            ev_cat = rng.integers(0, n_ev, size=(m, n_ev), dtype=idx_type)
-            ev_cat.sort(axis=1)
-            ev_all[b0 : b0 + m] = ev_cat
-            u_all[b0 : b0 + m] = rng.random((m, n_ev))
-            f_fm[b0 : b0 + m] = rng.integers(0, max(n_fm, 1), size=m)
-            f_rc[b0 : b0 + m] = rng.integers(0, max(n_rc, 1), size=m)
-        zero = np.zeros(n_draws, dtype=np.int64)
-
-        def alts(cfg: frozenset[str]) -> dict[Any, NDArray[np.int64]]:
-            on = "fits" in cfg
-            return {
-                "final_mass": (1 + f_fm) if (on and n_fm) else zero,
-                "recoil": (1 + f_rc) if (on and n_rc) else zero,
-                None: zero,
-            }
-
-        post = [i for i, c in enumerate(cfgs) if "posterior" in c]
-        num = {i: {st.name: np.zeros(n_draws) for st in stats} for i in post}
-        den = {i: np.zeros(n_draws) for i in post}
-        den_e = np.empty(n_ev)
-        num_e: dict[str, NDArray] = {}
-        w_e = np.empty(n_ev)
-        cols = list(pop.columns)
-        if self.selection == "inspiral-volume":
-            cols += ["m1_msun", "m2_msun"]
-        offset = 0
-        present = pop.present
-        kinds = self.event_kinds()
-        with self._bar("rate: event groups", self.n_rows) as advance:
-            for gi, (e0, e1) in enumerate(self._group_event_ranges):
-                n_g = int(present[e0:e1].sum())
-                rows_g = int(self._tallies["rows"].to_numpy()[e0:e1].sum())
-                if n_g == 0:
-                    advance(rows_g)
-                    continue
-                df = self._read_group(gi, pop)
-                gp = prepare_population(
-                    df,
-                    cols,
-                    selection=self.selection,
-                    kind=pop.kind,
-                    source=self.source,
-                    kinds_of_events=kinds,
-                )
-                del df
-                if gp.n_events != n_g:
-                    raise RuntimeError("event group prepared with an unexpected number of events")
-                if self.selection == "inspiral-volume":
-                    from gwdeficit.convert import chirp_mass
-
-                    mc = chirp_mass(gp.values["m1_msun"][:, 0], gp.values["m2_msun"][:, 0])
-                    gp = replace(
-                        gp, row_factor=np.exp((-15.0 / 6.0) * np.log(mc) - pop.log_factor_mean)
-                    )
-                o = offset
-                d_e, n_e = _event_means(gp, stats)
-                den_e[o : o + n_g] = d_e
-                for name, arr in n_e.items():
-                    num_e.setdefault(name, np.empty((n_ev, arr.shape[1])))[o : o + n_g] = arr
-                w_e[o : o + n_g] = gp.event_weight
-                flat = {c: v.ravel() for c, v in gp.values.items()}
-                width = {c: v.shape[1] for c, v in gp.values.items()}
-                for b0 in range(0, n_draws, chunk):
-                    m = min(chunk, n_draws - b0)
-                    ev = ev_all[b0 : b0 + m]
-                    u = u_all[b0 : b0 + m]
-                    for i in post:
-                        if "catalogue" in cfgs[i]:
-                            mask = (ev >= o) & (ev < o + n_g)
-                            bi, ji = np.nonzero(mask)
-                            evl = ev[bi, ji].astype(np.int64) - o
-                            uu = u[bi, ji]
-                        else:
-                            bi = np.repeat(np.arange(m), n_g)
-                            evl = np.tile(np.arange(n_g, dtype=np.int64), m)
-                            uu = np.asarray(u[:, o : o + n_g]).ravel()
-                        rows = _pick_rows(gp, evl, uu)
-                        wgt = gp.event_weight[evl] * gp.row_factor[rows]
-                        den[i][b0 : b0 + m] += np.bincount(bi, weights=wgt, minlength=m)
-                        alt = alts(cfgs[i])
-                        for st in stats:
-                            k = width[st.column]
-                            a = alt[_COLUMN_FAMILY.get(st.column)][b0 : b0 + m]
-                            pos = rows * k + a[bi] if k > 1 else rows
-                            x = flat[st.column].take(pos)
-                            y = x if st.threshold is None else _indicator(x, st.threshold)
-                            num[i][st.name][b0 : b0 + m] += np.bincount(
-                                bi, weights=wgt * y, minlength=m
-                            )
-                offset += n_g
-                advance(rows_g)
-        out = [{st.name: np.empty(n_draws) for st in stats} for _ in cfgs]
-        for i in post:
-            for st in stats:
-                out[i][st.name][:] = num[i][st.name] / den[i]
-        all_events = np.arange(n_ev, dtype=np.int64)
-        for b0 in range(0, n_draws, chunk):
-            m = min(chunk, n_draws - b0)
-            ev_cat = np.asarray(ev_all[b0 : b0 + m])
-            for i, cfg in enumerate(cfgs):
-                if "posterior" in cfg:
-                    continue
-                ev = ev_cat if "catalogue" in cfg else np.broadcast_to(all_events, (m, n_ev))
-                alt = alts(cfg)
-                W = w_e[ev]
-                dn = (W * den_e[ev]).sum(axis=1)
-                for st in stats:
-                    a = alt[_COLUMN_FAMILY.get(st.column)][b0 : b0 + m]
-                    means = num_e[st.name]
-                    k = means.shape[1]
-                    pos = ev * k + a[:, None] if k > 1 else ev
-                    out[i][st.name][b0 : b0 + m] = (W * means.ravel().take(pos)).sum(axis=1) / dn
-            if progress is not None:
-                progress(m)
-        del ev_all, u_all
-        return out
-
-    # -- rows mode ------------------------------------------------------------------------------
-
-    def _rows_partial(
-        self, df: pd.DataFrame, pop: StreamPopulation, gid: NDArray[np.int64]
-    ) -> tuple[NDArray, dict[str, NDArray]]:
-        """Per Poisson group: sum of W s, and per stat and alternative sum of W s y."""
-        import pandas as pd
-
-        from gwdeficit.resample import _COLUMN_FAMILY, FIT_FAMILIES, _indicator, _row_numbers
-
-        K = self.n_groups
-        w = pd.to_numeric(df["weight"], errors="coerce").to_numpy(np.float64)
-        used = ~df["remnant_status"].astype(str).str.startswith(_NOT_EST).to_numpy()
-        keep = used & (w > 0)
-        if pop.kind is not None:
-            keep &= (df["kind"].astype(str) == pop.kind).to_numpy()
-        idx = np.flatnonzero(keep)
-        if self.selection == "none":
-            ws = w[idx]
-        elif self.selection == "inspiral-volume":
-            lf = self._log_factor(df.iloc[idx])
-            bad = np.flatnonzero(~np.isfinite(lf))
-            if bad.size:
-                raise schema.BadRowsError(
-                    self.source, "m1_msun", "no positive chirp mass", _row_numbers(df, idx[bad])
-                )
-            ws = w[idx] * np.exp(lf - pop.log_factor_mean)
-        else:
-            vt = pd.to_numeric(df["vt_gpc3_yr"], errors="coerce").to_numpy(np.float64)[idx]
-            bad = np.flatnonzero(~(np.isfinite(vt) & (vt > 0)))
-            if bad.size:
-                raise schema.BadRowsError(
-                    self.source,
-                    "vt_gpc3_yr",
-                    "sensitive volume-time is not a positive number",
-                    _row_numbers(df, idx[bad]),
-                )
-            ws = w[idx] / vt
-        g = gid[idx]
-        den = np.bincount(g, weights=ws, minlength=K)
-        nums: dict[str, NDArray] = {}
-        for st in pop_stats(pop, self._stats):
-            fam = _COLUMN_FAMILY.get(st.column)
-            names = pop.fit_names.get(fam, ()) if fam else ()
-            base = df[st.column].to_numpy(np.float64)[idx]
-            alts = [base]
-            for name in names:
-                alt = df[f"{FIT_FAMILIES[fam]}{schema.PER_FIT_SEPARATOR}{name}"].to_numpy(
-                    np.float64
-                )[idx]
-                if st.column == "deficit_msun":
-                    alt = alt + df["ejected_msun"].to_numpy(np.float64)[idx]
-                alts.append(alt)
-            arr = np.empty((K, len(alts)))
-            for j, x in enumerate(alts):
-                y = x if st.threshold is None else _indicator(x, st.threshold)
-                arr[:, j] = np.bincount(g, weights=ws * y, minlength=K)
-            nums[st.name] = arr
-        return den, nums
-
-    def _rows_sums(self, stats: Sequence[Any]) -> None:
-        """One pass over the table: the Poisson-group sums of every prepared population."""
-        if self._row_sums is not None:
-            return
-        self._stats = list(stats)
-        cols = self._scan_columns()
-        if self.selection == "column":
-            cols.append("vt_gpc3_yr")
-        _, batches, _ = _open(self.path, self.batch_rows, list(dict.fromkeys(cols)))
-        sums: dict[int, tuple[NDArray, dict[str, NDArray]]] = {}
-        offset = 0
-        with self._bar("rate: Poisson groups", self.n_rows) as advance:
-            for table in batches():
-                df = table.to_pandas()
-                gid = _row_groups(self.seed, offset, len(df), self.n_groups)
-                offset += len(df)
-                for j, pop in enumerate(self._pops):
-                    den, nums = self._rows_partial(df, pop, gid)
-                    if j not in sums:
-                        sums[j] = (den, nums)
-                    else:
-                        sums[j][0][:] += den
-                        for k, v in nums.items():
-                            sums[j][1][k][:] += v
-                advance(len(df))
-        self._row_sums = sums
-
-    def _rows_bootstrap(
-        self,
-        pop: StreamPopulation,
-        stats: Sequence[Any],
-        cfgs: Sequence[frozenset[str]],
+        stats: list[Any],
+        cfgs: list[frozenset[str]],
         n_draws: int,
         rng: np.random.Generator,
         progress: Callable[[int], None] | None,
@@ -1387,8 +1472,92 @@ class StreamPopulations:
     ) -> list[dict[str, NDArray[np.float64]]]:
         from gwdeficit.resample import _COLUMN_FAMILY
 
-        if self._row_sums is not None and {s.name for s in stats} != {s.name for s in self._stats}:
-            raise OptionError("the streamed populations were summed for other statistics")
+        n_ev = pop.n_events
+        n_fm = pop.n_alternatives("final_mass")
+        n_rc = pop.n_alternatives("recoil")
+        chunk = max(1, int(chunk_picks) // max(n_ev, 1))
+        state = rng.bit_generator.state
+        post = [i for i, c in enumerate(cfgs) if "posterior" in c]
+        out = [{st.name: np.zeros(n_draws) for st in stats} for _ in cfgs]
+        den = {i: np.zeros(n_draws) for i in post}
+        den_e = np.empty(n_ev)
+        w_e = np.empty(n_ev)
+        num_e: dict[str, NDArray] = {}
+        with self._bar("rate: event groups", self.n_rows) as advance:
+            for rows_g, res in self.group_results(pop, stats, cfgs, n_draws, state, chunk):
+                if res is not None:
+                    o, n_g = res["offset"], res["n"]
+                    den_e[o : o + n_g] = res["den_e"]
+                    w_e[o : o + n_g] = res["w_e"]
+                    for name, arr in res["num_e"].items():
+                        num_e.setdefault(name, np.empty((n_ev, arr.shape[1])))[o : o + n_g] = arr
+                    for i in post:
+                        den[i] += res["den"][i]
+                        for name, v in res["num"][i].items():
+                            out[i][name] += v
+                advance(rows_g)
+        for i in post:
+            for st in stats:
+                out[i][st.name] /= den[i]
+        # Posterior off: the in-memory formula on the gathered per-event means.
+        all_events = np.arange(n_ev, dtype=np.int64)
+        for b0, m, ev_cat, _, f_fm, f_rc in bootstrap_ingredients(
+            state, n_draws, n_ev, n_fm, n_rc, chunk
+        ):
+            for i, cfg in enumerate(cfgs):
+                if "posterior" in cfg:
+                    continue
+                ev = ev_cat if "catalogue" in cfg else np.broadcast_to(all_events, (m, n_ev))
+                alt = _alternatives(cfg, f_fm, f_rc, n_fm, n_rc, m)
+                W = w_e[ev]
+                dn = (W * den_e[ev]).sum(axis=1)
+                for st in stats:
+                    a = alt[_COLUMN_FAMILY.get(st.column)]
+                    means = num_e[st.name]
+                    k = means.shape[1]
+                    pos = ev * k + a[:, None] if k > 1 else ev
+                    out[i][st.name][b0 : b0 + m] = (W * means.ravel().take(pos)).sum(axis=1) / dn
+            if progress is not None:
+                progress(m)
+        return out
+
+    # -- rows mode ------------------------------------------------------------------------------
+
+    def _rows_sums(self, stats: list[Any]) -> None:
+        """One pass over the table: the Poisson-group sums of every prepared population."""
+        if self._row_sums is not None:
+            if [s.name for s in stats] != [s.name for s in self._stats]:
+                raise OptionError("the streamed populations were summed for other statistics")
+            return
+        self._stats = stats
+        cols = self._scan_columns()
+        if self.selection == "column":
+            cols.append("vt_gpc3_yr")
+        sums: list[tuple[NDArray, dict[str, NDArray]]] | None = None
+        with self._bar("rate: Poisson groups", self.n_rows) as advance:
+            for n, parts in self.map_batches(cols, rows_part, self.config, self._pops, stats):
+                if sums is None:
+                    sums = parts
+                else:
+                    for (den, nums), (d2, n2) in zip(sums, parts, strict=True):
+                        den += d2
+                        for k, v in n2.items():
+                            nums[k] += v
+                advance(n)
+        self._row_sums = sums or []
+
+    def _rows_bootstrap(
+        self,
+        pop: StreamPopulation,
+        stats: list[Any],
+        cfgs: list[frozenset[str]],
+        n_draws: int,
+        rng: np.random.Generator,
+        progress: Callable[[int], None] | None,
+        chunk_picks: int,
+    ) -> list[dict[str, NDArray[np.float64]]]:
+        from gwdeficit.resample import _COLUMN_FAMILY
+
         self._rows_sums(stats)
         j = next(i for i, p in enumerate(self._pops) if p is pop)
         den_g, num_g = self._row_sums[j]
@@ -1409,107 +1578,70 @@ class StreamPopulations:
             f_rc = rng.integers(0, max(n_rc, 1), size=m)
             resampled = counts @ stack
             rows = np.arange(m)
-            zero = np.zeros(m, dtype=np.int64)
             for i, cfg in enumerate(cfgs):
-                tot = (
-                    resampled if "catalogue" in cfg else np.broadcast_to(fixed, (m, fixed.shape[1]))
-                )
-                on = "fits" in cfg
-                alt = {
-                    "final_mass": (1 + f_fm) if (on and n_fm) else zero,
-                    "recoil": (1 + f_rc) if (on and n_rc) else zero,
-                    None: zero,
-                }
-                for j, st in enumerate(stats):
+                tot = resampled if "catalogue" in cfg else np.broadcast_to(fixed, resampled.shape)
+                alt = _alternatives(cfg, f_fm, f_rc, n_fm, n_rc, m)
+                for j2, st in enumerate(stats):
                     a = alt[_COLUMN_FAMILY.get(st.column)]
-                    out[i][st.name][b0 : b0 + m] = tot[rows, start[j] + a] / tot[:, 0]
+                    out[i][st.name][b0 : b0 + m] = tot[rows, start[j2] + a] / tot[:, 0]
             if progress is not None:
                 progress(m)
         return out
 
 
-def pop_stats(pop: StreamPopulation, stats: Sequence[Any]) -> list[Any]:
-    """The statistics whose column the population was prepared for."""
-    return [st for st in stats if st.column in pop.columns]
-
-
-def _merge_sums(parts: Sequence[pd.DataFrame | None]) -> pd.DataFrame | None:
-    import pandas as pd
-
-    frames = [p for p in parts if p is not None]
-    if not frames:
-        return None
-    if len(frames) == 1:
-        return frames[0]
-    return pd.concat(frames).fillna(0).groupby(level=0, sort=False).sum()
-
-
 def stream_budget(
     remnants: str | os.PathLike[str],
     *,
-    seed: int = 0,
-    selection: str = "none",
-    escape_speeds_kms: Sequence[float] = (),
     mode: str = "auto",
     batch_rows: int = DEFAULT_BATCH_ROWS,
     group_rows: int = DEFAULT_GROUP_ROWS,
-    progress: Callable[[str, int | None], Any] | None = None,
-    inputs: Mapping[str, str] | None = None,
-    source: str | None = None,
+    rows_progress: Callable[[str, int | None], Any] | None = None,
+    engine_factory: Callable[..., StreamPopulations] | None = None,
     **budget_kwargs: Any,
 ) -> Any:
     """The rate stage's budget of a remnants Parquet file or folder, out of core.
 
-    Keyword arguments as :func:`gwdeficit.budget.compute_budget` (volumes, rate, rates_by_kind,
-    evolution, n_draws, cosmology, densities, sources, default_rate_z, keep_draws, progress of
-    the draws as ``draws_progress``); ``mode``, ``batch_rows`` and ``group_rows`` as for
-    :class:`StreamPopulations`; ``progress(description, total)`` returns a context manager
-    yielding ``advance(rows)`` (for example :func:`row_progress`). Returns the
-    :class:`~gwdeficit.budget.RateBudget`; its metadata records the engine and mode.
+    ``budget_kwargs`` as for :func:`gwdeficit.budget.compute_budget` (volumes, rate,
+    rates_by_kind, evolution, escape_speeds_kms, selection, n_draws, seed, cosmology,
+    densities, sources, default_rate_z, keep_draws, progress of the draws, source, inputs);
+    ``mode``, ``batch_rows`` and ``group_rows`` as for :class:`StreamPopulations`;
+    ``rows_progress(description, total)`` returns a context manager yielding
+    ``advance(rows)`` (for example :func:`row_progress`); ``engine_factory`` builds the engine
+    (default :class:`StreamPopulations`; the Dask engine passes its own). Returns the
+    :class:`~gwdeficit.budget.RateBudget`; its notes and summary name the engine and mode.
     """
     from gwdeficit import workdir as wd
     from gwdeficit.budget import MEAN_COLUMNS, compute_budget
 
     path = Path(remnants)
-    src = source or str(path)
-    if inputs is None:
-        inputs = {src: wd.file_sha256(path)}
-    speeds = sorted({float(v) for v in escape_speeds_kms})
+    kw = dict(budget_kwargs)
+    kw.setdefault("source", str(path))
+    if kw.get("inputs") is None:
+        kw["inputs"] = {kw["source"]: wd.file_sha256(path)}
+    speeds = sorted({float(v) for v in kw.get("escape_speeds_kms", ())})
     columns = list(dict.fromkeys([*MEAN_COLUMNS.values(), *(["vkick_kms"] if speeds else [])]))
-    draws_progress = budget_kwargs.pop("draws_progress", None)
-    with StreamPopulations(
+    factory = engine_factory or StreamPopulations
+    with factory(
         path,
-        seed=seed,
+        seed=int(kw.get("seed", 0)),
         columns=columns,
-        selection=selection,
+        selection=kw.get("selection", "none"),
         mode=mode,
         batch_rows=batch_rows,
         group_rows=group_rows,
-        source=src,
-        digest="".join(inputs.values()),
-        progress=progress,
+        source=kw["source"],
+        digest="".join(kw["inputs"].values()),
+        progress=rows_progress,
     ) as engine:
-        result = compute_budget(
-            engine.frame,
-            seed=seed,
-            selection=selection,
-            escape_speeds_kms=speeds,
-            source=src,
-            inputs=inputs,
-            engine=engine,
-            progress=draws_progress,
-            **budget_kwargs,
-        )
-        note = f"streamed rate stage ({engine.mode} mode, batches of {batch_rows} rows)" + (
-            f": random-group Poisson bootstrap over {engine.n_groups} groups"
-            if engine.mode == "rows"
-            else ""
-        )
+        result = compute_budget(engine.frame, engine=engine, **kw)
+        note = f"{engine.engine_name} rate stage ({engine.mode} mode, batches of {batch_rows} rows)"
+        if engine.mode == "rows":
+            note += f": random-group Poisson bootstrap over {engine.n_groups} groups"
     notes = (*result.notes, note)
     meta = dict(result.meta)
     summary = dict(meta.get(schema.META_SUMMARY, {}))
     summary["notes"] = list(notes)
-    summary["engine"] = {"name": "stream", "mode": engine.mode, "batch_rows": batch_rows}
+    summary["engine"] = {"name": engine.engine_name, "mode": engine.mode, "batch_rows": batch_rows}
     meta[schema.META_SUMMARY] = summary
     result.table.attrs.update(meta)
     return replace(result, meta=meta, notes=notes)

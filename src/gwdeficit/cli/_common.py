@@ -37,6 +37,41 @@ WorkdirOpt = Annotated[
 ForceOpt = Annotated[bool, typer.Option("--force", help="Overwrite existing outputs.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print the summary as JSON.")]
 SeedOpt = Annotated[int, typer.Option("--seed", help="Seed of the run's random numbers.")]
+EngineOpt = Annotated[
+    str,
+    typer.Option(
+        "--engine",
+        help="local: this machine, streaming inputs larger than one batch; dask: a Dask "
+        "cluster (needs the 'dask' extra).",
+    ),
+]
+SchedulerOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--scheduler",
+        help="With --engine dask: address of a running Dask scheduler (e.g. "
+        "tcp://127.0.0.1:8786); default: a local cluster on 127.0.0.1.",
+        show_default=False,
+    ),
+]
+BatchRowsOpt = Annotated[
+    int, typer.Option("--batch-rows", help="Rows per batch or partition (bounds memory).")
+]
+
+
+def check_engine(engine: str, scheduler: str | None) -> str:
+    """Validate --engine / --scheduler; return the engine name in lower case."""
+    name = engine.strip().lower()
+    if name not in ("local", "dask"):
+        raise OptionError(f"--engine {engine!r} is not known; valid: local, dask")
+    if scheduler is not None and name != "dask":
+        raise OptionError("--scheduler applies to --engine dask only")
+    return name
+
+
+def show_progress(as_json: bool) -> bool:
+    """Progress bars go to standard error, only when it is a terminal and not with --json."""
+    return not as_json and sys.stderr.isatty()
 
 
 def err(message: str) -> None:
