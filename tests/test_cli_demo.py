@@ -222,7 +222,9 @@ def test_demo_runs_every_stage_and_every_readme_command(tmp_path, monkeypatch):
             continue
         res = runner.invoke(app, shlex.split(line)[1:])
         assert res.exit_code == 0, f"{line}: {res.output}"
-    assert (wd / "figures" / "budget.pdf").is_file()  # from 'gwdeficit plot ... --pdf --force'
+    # 'gwdeficit plot ... --pdf --force' wrote a PDF beside every PNG of the plot stage.
+    for name in figures_names():
+        assert (wd / "figures" / f"{name}.pdf").read_bytes()[:5] == b"%PDF-"
 
 
 def figures_names() -> tuple[str, ...]:

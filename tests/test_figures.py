@@ -254,11 +254,11 @@ def _fill_workdir(wd) -> None:
     write_parquet(_rates(), wd / RATES_FILE, {})
 
 
-def test_write_figures_writes_png_of_the_intended_size_and_pdf(workdir):
+def test_write_figures_writes_png_of_the_intended_size(workdir):
     _fill_workdir(workdir)
-    report = figures.write_figures(workdir, pdf=True)
+    report = figures.write_figures(workdir)
     names = {p.name for p in report.written}
-    assert names == {f"{n}.{ext}" for n in figures.FIGURE_NAMES for ext in ("png", "pdf")}
+    assert names == {f"{n}.png" for n in figures.FIGURE_NAMES}
     assert report.skipped == ()
     for pf in report.figures:
         png = workdir / "figures" / f"{pf.name}.png"
@@ -266,7 +266,6 @@ def test_write_figures_writes_png_of_the_intended_size_and_pdf(workdir):
         assert w_in == pytest.approx(figures.COLUMN_WIDTH_IN)
         assert _png_size(png) == (round(w_in * figures.DPI), round(h_in * figures.DPI))
         assert mpimg.imread(png).shape[:2] == (round(h_in * figures.DPI), round(w_in * figures.DPI))
-        assert (workdir / "figures" / f"{pf.name}.pdf").read_bytes()[:5] == b"%PDF-"
     assert not list((workdir / "figures").glob(".gwdeficit-tmp-*"))
 
     from PIL import Image  # a matplotlib dependency
@@ -279,6 +278,17 @@ def test_write_figures_writes_png_of_the_intended_size_and_pdf(workdir):
     with pytest.raises(OutputExistsError):
         figures.write_figures(workdir)
     assert (workdir / "figures" / "kicks.png").stat().st_mtime_ns == before
+
+
+def test_save_figure_writes_pdf_on_request(tmp_path):
+    pf = figures.error_budget_figure(_rates())
+    paths = figures.save_figure(pf, tmp_path, formats=("png", "pdf"))
+    assert [p.name for p in paths] == ["error_budget.png", "error_budget.pdf"]
+    assert paths[1].read_bytes()[:5] == b"%PDF-"
+    with pytest.raises(OptionError):
+        figures.save_figure(pf, tmp_path, formats=("svg",))
+    with pytest.raises(OutputExistsError):
+        figures.save_figure(pf, tmp_path, formats=("pdf",))
 
 
 def test_write_figures_reports_a_missing_table(workdir):
