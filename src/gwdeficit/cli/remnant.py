@@ -37,7 +37,10 @@ def format_summary(s: dict[str, Any]) -> str:
             lines.append(f"  {name:<40} {n}")
     if s["phi12_drawn"]:
         lines.append(f"drawn      phi12 for {s['phi12_drawn']} row(s) (missing), seed {s['seed']}")
-    lines.append(f"drawn      in-plane spin phase at merger for every BBH row, seed {s['seed']}")
+    if s["estimated"]:
+        lines.append(
+            f"drawn      in-plane spin phase at merger for every BBH row, seed {s['seed']}"
+        )
     lines.append(f"time       {s['seconds']:.2f} s")
     lines.append(f"wrote      {s['output']}")
     lines.append("Research estimates from published NR fits; see the calibrated ranges above.")
