@@ -68,6 +68,7 @@ def test_tour_notebook_executes(python3_kernel, tmp_path, monkeypatch):
         nb,
         kernel_name=python3_kernel,
         timeout=600,
+        startup_timeout=180,  # a loaded 2-core CI machine can be slow to start a kernel
         resources={"metadata": {"path": str(tmp_path)}},
     )
     client.execute()  # raises CellExecutionError on the first failing cell
