@@ -118,6 +118,8 @@ def ingest(
     batch_rows: Annotated[
         int, typer.Option("--batch-rows", help="Rows read per batch (bounds memory).")
     ] = 1 << 18,  # gwdeficit.io.formats.DEFAULT_BATCH_ROWS (not imported: keeps --help fast)
+    engine: _common.EngineOpt = "local",
+    scheduler: _common.SchedulerOpt = None,
     force: _common.ForceOpt = False,
     as_json: _common.JsonOpt = False,
 ) -> None:
@@ -127,8 +129,14 @@ def ingest(
     rows read / accepted / rejected by reason, events, ranges, conversions and assumptions.
     """
     from gwdeficit.io import IngestOptions
-    from gwdeficit.io import ingest as run_ingest
+    from gwdeficit.stream import row_progress, stream_ingest
 
+    if _common.check_engine(engine, scheduler) == "dask":
+        _common.err(
+            "note: ingest reads its input in order on this machine, batch by batch (row "
+            "numbering and reject accounting are sequential); --engine dask applies to the "
+            "remnant and rate stages"
+        )
     options = IngestOptions(
         columns=_common.parse_pairs(column, "--column"),
         units=_common.parse_pairs(unit, "--unit"),
@@ -140,7 +148,8 @@ def ingest(
         event=event,
         batch_rows=batch_rows,
     )
-    summary = run_ingest(file, workdir, force=force, options=options)
+    with row_progress("ingest", None, _common.show_progress(as_json)) as advance:
+        summary = stream_ingest(file, workdir, force=force, options=options, progress=advance)
     if as_json:
         _common.print_json(summary)
     else:
