@@ -393,7 +393,8 @@ def _draw_angles(
 
     n kick phases uniform in [0, 2 pi), then, if any BBH row lacks phi12 (``any_missing``),
     n values uniform in [0, 2 pi) of which the rows with NaN use theirs. Drawing whole arrays
-    keeps a row's values independent of how the rows are split into blocks.
+    keeps a row's values independent of how the rows are split into blocks. Keep this order
+    and the ``rng.random(n)`` calls: gwdeficit.stream reproduces them batch by batch.
     """
     if kick_phase is None:
         phase = rng.random(n)
