@@ -1645,3 +1645,81 @@ def stream_budget(
     meta[schema.META_SUMMARY] = summary
     result.table.attrs.update(meta)
     return replace(result, meta=meta, notes=notes)
+
+
+# --------------------------------------------------------------------------------------------
+# Entry points of the command line (engine choice, progress bars)
+# --------------------------------------------------------------------------------------------
+
+
+def parquet_rows(path: str | os.PathLike[str]) -> int:
+    """Number of rows of a Parquet file or folder, from its metadata."""
+    n, _, _ = _open(path, DEFAULT_BATCH_ROWS, [])
+    return n
+
+
+def remnant_stage(
+    catalogue: str | os.PathLike[str],
+    out: str | os.PathLike[str],
+    *,
+    engine: str = "local",
+    scheduler: str | None = None,
+    seed: int = 0,
+    batch_rows: int = DEFAULT_BATCH_ROWS,
+    force: bool = False,
+    show_progress: bool = False,
+    inputs: Mapping[str, str] | None = None,
+) -> dict[str, Any]:
+    """The remnant stage batch by batch on ``engine`` ("local" or "dask"), with a progress bar.
+
+    Returns the summary of :func:`stream_remnants`.
+    """
+    total = parquet_rows(catalogue)
+    with row_progress("remnants", total, show_progress) as advance:
+        if engine == "dask":
+            from gwdeficit import dask_engine
+
+            with dask_engine.connect(scheduler) as client:
+                return dask_engine.dask_remnants(
+                    catalogue,
+                    out,
+                    client=client,
+                    seed=seed,
+                    batch_rows=batch_rows,
+                    force=force,
+                    progress=advance,
+                    inputs=None if inputs is None else dict(inputs),
+                )
+        return stream_remnants(
+            catalogue,
+            out,
+            seed=seed,
+            batch_rows=batch_rows,
+            force=force,
+            progress=advance,
+            inputs=inputs,
+        )
+
+
+def budget_stage(
+    remnants: str | os.PathLike[str],
+    *,
+    engine: str = "local",
+    scheduler: str | None = None,
+    batch_rows: int = DEFAULT_BATCH_ROWS,
+    show_progress: bool = False,
+    **budget_kwargs: Any,
+) -> Any:
+    """The rate stage out of core on ``engine`` ("local" or "dask"); arguments as
+    :func:`stream_budget`. Progress bars (rows per pass) when ``show_progress``."""
+    from functools import partial
+
+    bars = partial(row_progress, enabled=True) if show_progress else None
+    if engine == "dask":
+        from gwdeficit import dask_engine
+
+        with dask_engine.connect(scheduler) as client:
+            return dask_engine.dask_budget(
+                remnants, client=client, batch_rows=batch_rows, rows_progress=bars, **budget_kwargs
+            )
+    return stream_budget(remnants, batch_rows=batch_rows, rows_progress=bars, **budget_kwargs)

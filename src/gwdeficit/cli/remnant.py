@@ -58,6 +58,9 @@ def remnant(
     ] = None,
     workdir: _common.WorkdirOpt = None,
     seed: _common.SeedOpt = 0,
+    engine: _common.EngineOpt = "local",
+    scheduler: _common.SchedulerOpt = None,
+    batch_rows: _common.BatchRowsOpt = 1 << 20,
     force: _common.ForceOpt = False,
     as_json: _common.JsonOpt = False,
 ) -> None:
@@ -81,6 +84,13 @@ def remnant(
         raise InputFileError(f"{path}: no such file (run 'gwdeficit ingest' first, or give it)")
     out = folder / wd.REMNANTS_FILE
     wd.check_writable(out, force, inputs=(path,))
+    engine_name = _common.check_engine(engine, scheduler)
+    from gwdeficit.stream import parquet_rows
+
+    if engine_name == "dask" or parquet_rows(path) > batch_rows:
+        # Larger than one batch (or on a cluster): streamed, same results (gwdeficit.stream).
+        _streamed(path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0)
+        return
     df = wd.read_parquet(path)
     digest = wd.file_sha256(path)
 
@@ -112,6 +122,45 @@ def remnant(
         phi12_drawn=draws.get("phi12", {}).get("rows", 0),
         seconds=time.perf_counter() - t0,
     )
+    for w in caught:
+        if issubclass(w.category, FitRangeWarning):
+            _common.err(f"warning: {w.message}")
+    if as_json:
+        _common.print_json(summary)
+    else:
+        typer.echo(format_summary(summary))
+
+
+def _streamed(
+    path: Path,
+    out: Path,
+    engine: str,
+    scheduler: str | None,
+    seed: int,
+    batch_rows: int,
+    force: bool,
+    as_json: bool,
+    t0: float,
+) -> None:
+    """The remnant stage batch by batch (local or Dask engine), then the same summary."""
+    import warnings
+
+    from gwdeficit.fits.registry import FitRangeWarning
+    from gwdeficit.stream import remnant_stage
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FitRangeWarning)
+        summary = remnant_stage(
+            path,
+            out,
+            engine=engine,
+            scheduler=scheduler,
+            seed=seed,
+            batch_rows=batch_rows,
+            force=force,
+            show_progress=_common.show_progress(as_json),
+        )
+    summary.update(input=str(path), output=str(out), seed=seed, seconds=time.perf_counter() - t0)
     for w in caught:
         if issubclass(w.category, FitRangeWarning):
             _common.err(f"warning: {w.message}")
