@@ -1652,10 +1652,15 @@ def stream_budget(
 # --------------------------------------------------------------------------------------------
 
 
+def parquet_shape(path: str | os.PathLike[str]) -> tuple[int, list[str]]:
+    """Number of rows and column names of a Parquet file or folder, from its metadata."""
+    n, _, names = _open(path, DEFAULT_BATCH_ROWS, [])
+    return n, names
+
+
 def parquet_rows(path: str | os.PathLike[str]) -> int:
     """Number of rows of a Parquet file or folder, from its metadata."""
-    n, _, _ = _open(path, DEFAULT_BATCH_ROWS, [])
-    return n
+    return parquet_shape(path)[0]
 
 
 def remnant_stage(

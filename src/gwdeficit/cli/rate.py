@@ -10,10 +10,14 @@ from typing import Annotated, Any
 import typer
 
 from gwdeficit.cli._common import (
+    BatchRowsOpt,
+    EngineOpt,
     ForceOpt,
     JsonOpt,
+    SchedulerOpt,
     SeedOpt,
     WorkdirOpt,
+    check_engine,
     err,
     handles_errors,
     parse_pairs,
@@ -262,6 +266,9 @@ def rate(
     draws: DrawsOpt = 2000,
     seed: SeedOpt = 0,
     keep_draws: KeepDrawsOpt = False,
+    engine: EngineOpt = "local",
+    scheduler: SchedulerOpt = None,
+    batch_rows: BatchRowsOpt = 1 << 20,
     workdir: WorkdirOpt = None,
     force: ForceOpt = False,
     as_json: JsonOpt = False,
@@ -284,11 +291,18 @@ def rate(
     folder = wd.resolve_workdir(workdir)
     out = folder / wd.RATES_FILE
     draws_out = folder / wd.DRAWS_FILE if keep_draws else None
-    path, remnants = _load_remnants(file, folder, seed, force, (out, draws_out))
+    engine_name = check_engine(engine, scheduler)
+    streamed = _streamed_input(
+        file, folder, engine_name, scheduler, seed, batch_rows, force, as_json, (out, draws_out)
+    )
+    if streamed is None:
+        path, remnants = _load_remnants(file, folder, seed, force, (out, draws_out))
+    else:  # larger than one batch, or on a cluster: out of core (gwdeficit.stream)
+        path, remnants = streamed, None
 
     progress = None
     bar: Any = None
-    if not as_json and sys.stderr.isatty():
+    if streamed is None and not as_json and sys.stderr.isatty():
         from rich.console import Console
         from rich.progress import Progress
 
@@ -300,7 +314,12 @@ def rate(
             bar.update(task, completed=done, total=total)
 
     try:
-        result = compute_budget(
+        budget = (
+            compute_budget
+            if streamed is None
+            else _engine_budget(engine_name, scheduler, batch_rows, as_json)
+        )
+        result = budget(
             remnants,
             volumes=vols,
             escape_speeds_kms=speeds,
@@ -343,3 +362,84 @@ def rate(
         )
     else:
         _print_table(result.table, vols, out, draws_out, draws, seed)
+
+
+def _streamed_input(
+    file: Path | None,
+    folder: Path,
+    engine: str,
+    scheduler: str | None,
+    seed: int,
+    batch_rows: int,
+    force: bool,
+    as_json: bool,
+    outputs: tuple[Path | None, ...],
+) -> Path | None:
+    """The remnants file for the out-of-core rate stage, or None for the in-memory path.
+
+    Out of core with --engine dask, or when the input has more rows than --batch-rows. The
+    input is resolved as in :func:`gwdeficit.cli.cosmic._load_remnants`; a catalogue gets its
+    remnants computed first, batch by batch, into <workdir>/remnants.parquet.
+    """
+    import warnings
+
+    from gwdeficit import workdir as wd
+    from gwdeficit.schema import SchemaError
+    from gwdeficit.stream import parquet_shape, remnant_stage
+
+    if file is not None:
+        path = Path(file)
+    elif (folder / wd.REMNANTS_FILE).exists():
+        path = folder / wd.REMNANTS_FILE
+    else:
+        path = folder / wd.CATALOGUE_FILE
+    if not path.exists():
+        return None  # the in-memory loader names the missing file
+    rows, names = parquet_shape(path)
+    if engine == "local" and rows <= batch_rows:
+        return None
+    for o in outputs:
+        if o is not None:
+            wd.check_writable(o, force, inputs=(path,))
+    if "kind" not in names:
+        raise SchemaError(f"{path}: no 'kind' column; not a catalogue or remnants table")
+    if "deficit_msun" in names:
+        return path
+    rem_out = folder / wd.REMNANTS_FILE
+    wd.check_writable(rem_out, force, inputs=(path,))
+    err(f"{path} is a catalogue: computing its remnants first ({rem_out})")
+    from gwdeficit.fits.registry import FitRangeWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FitRangeWarning)
+        remnant_stage(
+            path,
+            rem_out,
+            engine=engine,
+            scheduler=scheduler,
+            seed=seed,
+            batch_rows=batch_rows,
+            force=force,
+            show_progress=not as_json and sys.stderr.isatty(),
+        )
+    for w in caught:
+        if issubclass(w.category, FitRangeWarning):
+            err(f"warning: {w.message}")
+    return rem_out
+
+
+def _engine_budget(engine: str, scheduler: str | None, batch_rows: int, as_json: bool) -> Any:
+    """compute_budget's stand-in for the out-of-core engines (same keyword arguments)."""
+    from gwdeficit.stream import budget_stage
+
+    def run(remnants: Any, **kw: Any) -> Any:
+        return budget_stage(
+            kw["source"],
+            engine=engine,
+            scheduler=scheduler,
+            batch_rows=batch_rows,
+            show_progress=not as_json and sys.stderr.isatty(),
+            **kw,
+        )
+
+    return run
