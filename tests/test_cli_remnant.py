@@ -68,7 +68,7 @@ def test_remnant_reads_the_working_folder_and_writes_remnants(workdir):
     text = res.stdout
     assert f"rows       {len(df)} (BBH 40, BNS 10)" in text
     assert "erg" in text and "Msun" in text and "time" in text
-    assert "not_estimated:neutron_star" in text
+    assert "not_estimated:no_tidal_deformability_or_radius" in text
 
 
 def test_no_overwrite_without_force_and_explicit_catalogue(workdir, tmp_path):
@@ -89,7 +89,7 @@ def test_json_summary_and_seed(workdir):
     assert res.exit_code == 0
     s = json.loads(res.stdout)
     assert s["rows"] == 50 and s["estimated"] == 40 and s["seed"] == 11
-    assert s["status"] == {"estimated": 40, "not_estimated:neutron_star": 10}
+    assert s["status"] == {"estimated": 40, "not_estimated:no_tidal_deformability_or_radius": 10}
     assert set(s["deficit_quantiles"]) == {"p05", "p50", "p95"}
     assert s["phi12_drawn"] > 0
 

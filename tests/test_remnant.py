@@ -19,7 +19,7 @@ from gwdeficit import schema
 from gwdeficit.fits.registry import REGISTRY, FitRangeWarning
 from gwdeficit.remnant import (
     BLOCK_ROWS,
-    STATUS_NEUTRON_STAR,
+    NS_EXTRA_COLUMNS,
     RemnantInputError,
     compute_remnants,
     remnant_arrays,
@@ -78,7 +78,11 @@ def test_columns_rows_and_inputs_are_kept():
         remnant_names
     )
     per_fit = [c for f in REGISTRY for c in f.columns]
-    assert list(out.columns[len(df.columns) + len(remnant_names) :]) == per_fit
+    # neutron-star rows add the branch's own columns after the per-fit ones
+    assert list(out.columns[len(df.columns) + len(remnant_names) :]) == [
+        *per_fit,
+        *NS_EXTRA_COLUMNS,
+    ]
     assert len(out) == len(df) and (out.index == df.index).all()
     pd.testing.assert_frame_equal(out[df.columns], before)  # nothing altered
     pd.testing.assert_frame_equal(df, before)  # input untouched
@@ -91,10 +95,11 @@ def test_every_nr_final_mass_fit_has_mass_and_energy_columns():
             assert f"mf_msun__{f.name}" in out and f"erad_msun__{f.name}" in out
 
 
-def test_neutron_star_rows_pass_through_not_estimated():
+def test_neutron_star_rows_without_tidal_information_are_not_estimated():
+    # No lambda and no --ns-radius: never a silent default, never treated as black holes.
     out = compute_remnants(catalogue(kinds=("BBH", "NSBH", "BNS")), seed=0)
     ns = out[out["kind"] != "BBH"]
-    assert (ns["remnant_status"] == STATUS_NEUTRON_STAR).all()
+    assert (ns["remnant_status"] == "not_estimated:no_tidal_deformability_or_radius").all()
     assert (ns["remnant_kind"] == "").all()
     assert not ns["in_fit_range"].any()
     physics = ["mf_msun", "chif", "erad_msun", "deficit_msun", "vkick_kms"]
@@ -274,7 +279,7 @@ def test_bad_values_in_neutron_star_rows_are_left_to_their_branch():
     df = catalogue(kinds=("BBH", "NSBH"))
     df.loc[1, "chi1"] = 5.0  # an NSBH row
     out = compute_remnants(df)
-    assert out.loc[1, "remnant_status"] == STATUS_NEUTRON_STAR
+    assert out.loc[1, "remnant_status"].startswith("not_estimated:")
 
 
 def test_schema_errors():

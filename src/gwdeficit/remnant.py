@@ -509,6 +509,7 @@ class Rows:
     fits: tuple[Fit, ...]
     source: str
     progress: Callable[[int], None] | None = None
+    options: Mapping[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -530,12 +531,116 @@ def _bbh_branch(rows: Rows) -> BranchResult:
     return BranchResult(cols, outside, n_phi_drawn)
 
 
+#: Extra per-row columns written when a catalogue holds neutron-star rows (NaN / False / ""
+#: on black-hole rows).
+NS_EXTRA_COLUMNS: tuple[str, ...] = (
+    "ns_disrupted",
+    "ns_erad_lower_bound",
+    "ns_erad_method",
+    "ns_tidal_source",
+    "ns_out_of_range",
+)
+
+#: Options of the neutron-star branch accepted by ``compute_remnants(ns_options=...)``.
+NS_OPTION_KEYS: tuple[str, ...] = (
+    "ns_radius_km",
+    "eos_relation",
+    "baryonic_relation",
+    "mtov_msun",
+    "r16_km",
+)
+
+
 def _neutron_star_branch(rows: Rows) -> BranchResult:
-    """NSBH and BNS: not estimated by the black-hole fits (placeholder for the NS branch)."""
-    n = int(np.count_nonzero(rows.mask))
+    """NSBH and BNS rows through :func:`gwdeficit.fits.neutron_star.ns_remnant`.
+
+    Non-disrupted NSBH rows (no matter left outside the black hole according to Foucart,
+    Hinderer & Nissanke 2018) get every binary-black-hole fit, evaluated with the same kick
+    phase and phi12 draws as black-hole rows, so their per-fit columns are filled like a
+    BBH's. Other neutron-star rows carry the neutron-star estimates in the default columns
+    (per-fit and spread columns NaN) and a ``remnant_status`` that says what was not estimated.
+    """
+    from gwdeficit.fits.neutron_star import STATUS_NO_BBH, ns_remnant
+
+    n = rows.values["m1_msun"].size
+    v = rows.values
+    sub = rows.frame.loc[rows.mask] if len(rows.frame) != n else rows.frame
+    lam = {
+        c: (
+            sub[c].to_numpy(dtype=np.float64, na_value=np.nan)
+            if c in sub.columns
+            else np.full(n, np.nan)
+        )
+        for c in ("lambda1", "lambda2")
+    }
+    kinds = sub["kind"].astype(str).to_numpy()
+    res = ns_remnant(
+        v["m1_msun"],
+        v["m2_msun"],
+        v["chi1"],
+        v["chi2"],
+        v["tilt1_rad"],
+        v["tilt2_rad"],
+        lam["lambda1"],
+        lam["lambda2"],
+        kinds,
+        phi12_rad=v["phi12_rad"],
+        bbh_remnant=None,
+        **dict(rows.options),
+    )
+    status = np.asarray(res["remnant_status"], dtype=object)
+    cols: dict[str, NDArray[Any]] = {}
+    for name in (
+        "mf_msun",
+        "chif",
+        "erad_msun",
+        "ejected_msun",
+        "deficit_msun",
+        "vkick_kms",
+    ):
+        cols[name] = np.array(res[name], dtype=np.float64)
+    cols["in_fit_range"] = np.array(res["in_fit_range"], dtype=bool)
+    cols["remnant_kind"] = np.asarray(res["remnant_kind"], dtype=object)
+    outside: dict[str, int] = {}
+    n_phi_drawn = 0
+
+    # Black-hole limit of NSBH rows: the binary-black-hole fits with the run's draws.
+    bh_limit = np.flatnonzero(status == STATUS_NO_BBH)
+    if bh_limit.size:
+        inp = _BbhInput(
+            {k: a[bh_limit] for k, a in v.items()},
+            rows.phase[bh_limit],
+            None if rows.phi12_draws is None else rows.phi12_draws[bh_limit],
+            rows.labels[bh_limit],
+            rows.source,
+        )
+        bbh, outside, n_phi_drawn = _bbh_core(inp, rows.fits)
+        for name, arr in bbh.items():
+            if name == "in_fit_range":
+                cols[name][bh_limit] &= arr
+            elif name in ("ejected_msun",):
+                continue
+            else:
+                col = cols.setdefault(name, np.full(n, np.nan))
+                col[bh_limit] = arr
+        cols["deficit_msun"][bh_limit] = bbh["erad_msun"]
+        cols["remnant_kind"][bh_limit] = "BH"
+        status[bh_limit] = STATUS_ESTIMATED
+    total = v["m1_msun"] + v["m2_msun"]
+    cols["erad_frac"] = cols["erad_msun"] / total
+    cols["remnant_status"] = status
+    cols["ns_disrupted"] = np.asarray(res["disrupted"], dtype=bool)
+    cols["ns_erad_lower_bound"] = np.asarray(res["erad_lower_bound"], dtype=bool)
+    method = np.asarray(res["erad_method"], dtype=object)
+    method[bh_limit] = "bbh-fits"
+    cols["ns_erad_method"] = method
+    src1 = np.asarray(res["tidal_source1"], dtype=object)
+    src2 = np.asarray(res["tidal_source2"], dtype=object)
+    cols["ns_tidal_source"] = np.where(kinds == "BNS", src1 + "," + src2, src2).astype(object)
+    cols["ns_out_of_range"] = np.asarray(res["out_of_range"], dtype=object)
     if rows.progress is not None:
         rows.progress(n)
-    return BranchResult({"remnant_status": np.full(n, STATUS_NEUTRON_STAR, dtype=object)})
+    return BranchResult(cols, outside, n_phi_drawn)
 
 
 # The one place where rows are dispatched by kind. A branch takes :class:`Rows` and returns a
@@ -584,6 +689,7 @@ def compute_remnants(
     source: str | None = None,
     inputs: Mapping[str, str] | None = None,
     progress: Callable[[int, int], None] | None = None,
+    ns_options: Mapping[str, Any] | None = None,
 ) -> pd.DataFrame:
     """Remnant columns for every row of a canonical catalogue DataFrame.
 
@@ -595,15 +701,27 @@ def compute_remnants(
     ``seed``/``rng``: the run's generator (``rng`` wins; else ``default_rng(seed)``) for the
     kick phase and missing phi12. ``fits``: registry names (default: all). ``source``: file
     name for messages; ``inputs``: {path: sha256} for provenance. ``progress(done, total)`` is
-    called after each block of rows. Emits :class:`FitRangeWarning` when rows lie outside a
-    calibrated range; raises ``SchemaError`` for missing columns and ``BadRowsError``
-    subclasses for bad rows (named by ``input_row`` when present).
+    called after each block of rows. ``ns_options``: keywords of the neutron-star branch
+    (:data:`NS_OPTION_KEYS`: ``ns_radius_km`` used where a tidal deformability is missing,
+    ``eos_relation``, ``baryonic_relation``, ``mtov_msun``, ``r16_km``); see
+    :func:`gwdeficit.fits.neutron_star.ns_remnant`. Neutron-star rows with neither a tidal
+    deformability nor a radius are not estimated (no silent default). Emits
+    :class:`FitRangeWarning` when rows lie outside a calibrated range; raises
+    ``SchemaError`` for missing columns and ``BadRowsError`` subclasses for bad rows (named by
+    ``input_row`` when present).
     """
     from gwdeficit import workdir
 
     src = source or "<DataFrame>"
     _check_frame(df, src)
     chosen = select_fits(fits)
+    ns_opts = {k: val for k, val in dict(ns_options or {}).items() if val is not None}
+    unknown = sorted(set(ns_opts) - set(NS_OPTION_KEYS))
+    if unknown:
+        raise schema.OptionError(
+            f"unknown neutron-star option(s) {', '.join(unknown)}; "
+            f"valid: {', '.join(NS_OPTION_KEYS)}"
+        )
     n = len(df)
     kinds = df["kind"].astype(str).to_numpy(dtype=object)
     labels = df["input_row"].to_numpy() if "input_row" in df.columns else np.arange(1, n + 1)
@@ -615,7 +733,10 @@ def compute_remnants(
     values = {c: df[c].to_numpy(dtype=np.float64, na_value=np.nan) for c in _INPUT_COLUMNS}
     gen = rng if rng is not None else np.random.default_rng(seed)
     is_bbh = kinds == "BBH"
-    phase, draws = _draw_angles(gen, n, bool(np.isnan(values["phi12_rad"][is_bbh]).any()), None)
+    # Rows that may meet the black-hole fits: BBH, and NSBH in their no-disruption limit.
+    bh_like = is_bbh | (kinds == "NSBH")
+    phase, draws = _draw_angles(gen, n, bool(np.isnan(values["phi12_rad"][bh_like]).any()), None)
+    has_ns = bool(np.any(~is_bbh))
     n_phi_drawn = 0
 
     done = [0]
@@ -629,6 +750,11 @@ def compute_remnants(
     out_cols["in_fit_range"] = np.zeros(n, dtype=bool)
     out_cols["remnant_kind"] = np.full(n, "", dtype=object)
     out_cols["remnant_status"] = np.full(n, "", dtype=object)
+    if has_ns:
+        out_cols["ns_disrupted"] = np.zeros(n, dtype=bool)
+        out_cols["ns_erad_lower_bound"] = np.zeros(n, dtype=bool)
+        for name in ("ns_erad_method", "ns_tidal_source", "ns_out_of_range"):
+            out_cols[name] = np.full(n, "", dtype=object)
     outside = {f.name: 0 for f in chosen}
     for kind, branch in KIND_BRANCHES.items():
         mask = kinds == kind
@@ -645,6 +771,7 @@ def compute_remnants(
                 fits=chosen,
                 source=src,
                 progress=_tick,
+                options=ns_opts,
             )
         )
         for name, arr in result.columns.items():
@@ -656,6 +783,8 @@ def compute_remnants(
     import pandas as pd
 
     order = [*_REMNANT_NAMES, *(c for f in chosen for c in f.columns)]
+    if has_ns:
+        order += list(NS_EXTRA_COLUMNS)
     new = pd.DataFrame({name: out_cols[name] for name in order}, index=df.index)
     out = pd.concat([df, new], axis=1)
     estimated = out_cols["remnant_status"] == STATUS_ESTIMATED
@@ -690,17 +819,36 @@ def compute_remnants(
         rows=n,
         rows_estimated=n_est,
         phi12_drawn=n_phi_drawn,
+        ns_options=ns_opts,
     )
     attrs: dict[str, Any] = {}
     for key in (schema.META_COSMOLOGY, schema.META_CONVERSIONS):
         if key in df.attrs:
             attrs[key] = df.attrs[key]
+    if has_ns:
+        from gwdeficit.fits.neutron_star import ns_fits_metadata
+
+        attrs[schema.META_NEUTRON_STAR] = {
+            "fits": ns_fits_metadata(ns_opts.get("eos_relation", _default_eos())),
+            "options": ns_opts,
+            "note": (
+                "BNS erad_msun is the post-Newtonian inspiral energy to contact, a lower bound "
+                "(ns_erad_lower_bound); disrupted NSBH rows carry ejected_msun only. Neutron-star "
+                "rows with no tidal deformability and no --ns-radius are not estimated."
+            ),
+        }
     attrs[schema.META_FITS] = fit_meta
     attrs[schema.META_UNITS] = _units(df, chosen)
     attrs[schema.META_REMNANT_DRAWS] = draws
     attrs[schema.META_PROVENANCE] = workdir.merge_provenance(df.attrs, record)
     out.attrs = attrs
     return out
+
+
+def _default_eos() -> str:
+    from gwdeficit.fits import ns_eos
+
+    return ns_eos.DEFAULT_C_LOVE
 
 
 def summarize_remnants(df: pd.DataFrame) -> dict[str, Any]:

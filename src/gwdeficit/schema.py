@@ -118,6 +118,7 @@ META_FITS = "gwdeficit.fits"
 META_REMNANT_DRAWS = "gwdeficit.remnant_draws"  # angles the remnant stage drew, with the seed
 META_RATE_MODEL = "gwdeficit.rate_model"
 META_SUMMARY = "gwdeficit.summary"
+META_NEUTRON_STAR = "gwdeficit.neutron_star"  # neutron-star fits, options and notes
 
 DISCLAIMER = (
     "Research estimate from published fitting formulas and rate models; not a reviewed "
