@@ -112,3 +112,30 @@ def test_unknown_neutron_star_option_is_a_user_error():
     with pytest.raises(OptionError, match="ns_radius_km"):
         df = _catalogue([{"m1_msun": 1.4, "m2_msun": 1.3, "kind": "BNS"}])
         compute_remnants(df, ns_options={"radius": 12})
+
+
+def test_remnant_command_takes_the_neutron_star_options(workdir):
+    from typer.testing import CliRunner
+
+    from gwdeficit import workdir as wd
+    from gwdeficit.cli import app
+
+    df = _catalogue(
+        [
+            {"m1_msun": 30.0, "m2_msun": 25.0, "kind": "BBH"},
+            {"m1_msun": 1.4, "m2_msun": 1.3, "kind": "BNS"},
+        ]
+    )
+    wd.write_parquet(df, workdir / wd.CATALOGUE_FILE, {})
+    runner = CliRunner()
+    res = runner.invoke(app, ["remnant", "--ns-radius", "12", "--mtov", "2.2", "--json"])
+    assert res.exit_code == 0, res.output
+    out = wd.read_parquet(workdir / wd.REMNANTS_FILE)
+    assert (out["remnant_status"] == "estimated").all()
+    assert out.attrs["gwdeficit.neutron_star"]["options"] == {
+        "ns_radius_km": 12.0,
+        "mtov_msun": 2.2,
+    }
+    res = runner.invoke(app, ["remnant", "--force", "--eos-relation", "nonsense"])
+    assert res.exit_code == 2
+    assert "nonsense" in res.output

@@ -61,6 +61,45 @@ def remnant(
     engine: _common.EngineOpt = "local",
     scheduler: _common.SchedulerOpt = None,
     batch_rows: _common.BatchRowsOpt = 1 << 20,
+    ns_radius: Annotated[
+        float | None,
+        typer.Option(
+            "--ns-radius",
+            help="Neutron-star radius in km, used where a row has no tidal deformability "
+            "(without it such neutron-star rows are not estimated).",
+        ),
+    ] = None,
+    eos_relation: Annotated[
+        str | None,
+        typer.Option(
+            "--eos-relation",
+            help="Compactness - tidal deformability relation: yagi-yunes-2017 (default) or "
+            "maselli-2013.",
+        ),
+    ] = None,
+    baryonic_relation: Annotated[
+        str | None,
+        typer.Option(
+            "--baryonic-relation",
+            help="Neutron-star baryonic mass: lattimer-prakash-2001 (default) or "
+            "timmes-woosley-weaver-1996.",
+        ),
+    ] = None,
+    mtov: Annotated[
+        float | None,
+        typer.Option(
+            "--mtov",
+            help="Maximum mass of a non-rotating neutron star (Msun), for the BNS remnant kind.",
+        ),
+    ] = None,
+    r16: Annotated[
+        float | None,
+        typer.Option(
+            "--r16",
+            help="Radius (km) of a 1.6 Msun neutron star for the BNS prompt-collapse threshold "
+            "(default: --ns-radius).",
+        ),
+    ] = None,
     force: _common.ForceOpt = False,
     as_json: _common.JsonOpt = False,
 ) -> None:
@@ -68,7 +107,8 @@ def remnant(
 
     Writes remnants.parquet into the working folder (every catalogue column, the default
     estimate with its fit spread, and one column per fit) and prints a summary. Neutron-star
-    binaries are passed through as not estimated.
+    binaries go through the neutron-star fits; rows without the tidal information they need
+    are marked not estimated, with the reason.
     """
     import warnings
 
@@ -87,7 +127,23 @@ def remnant(
     engine_name = _common.check_engine(engine, scheduler)
     from gwdeficit.stream import parquet_rows
 
+    ns_options = {
+        "ns_radius_km": ns_radius,
+        "eos_relation": eos_relation,
+        "baryonic_relation": baryonic_relation,
+        "mtov_msun": mtov,
+        "r16_km": r16,
+    }
+    ns_options = {k: v for k, v in ns_options.items() if v is not None}
     if engine_name == "dask" or parquet_rows(path) > batch_rows:
+        if ns_options:
+            from gwdeficit.schema import OptionError
+
+            raise OptionError(
+                "neutron-star options (--ns-radius, --eos-relation, --baryonic-relation, "
+                "--mtov, --r16) are not yet passed to the out-of-core engine; run inputs "
+                "holding neutron stars in memory (raise --batch-rows above the row count)"
+            )
         # Larger than one batch (or on a cluster): streamed, same results (gwdeficit.stream).
         _streamed(path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0)
         return
@@ -107,9 +163,16 @@ def remnant(
                     source=str(path),
                     inputs={str(path): digest},
                     progress=lambda done, total: bar.update(task, completed=done),
+                    ns_options=ns_options,
                 )
         else:
-            result = compute_remnants(df, seed=seed, source=str(path), inputs={str(path): digest})
+            result = compute_remnants(
+                df,
+                seed=seed,
+                source=str(path),
+                inputs={str(path): digest},
+                ns_options=ns_options,
+            )
     del df
     wd.write_parquet(result, out, result.attrs, force=force, inputs=(path,))
 
@@ -125,6 +188,10 @@ def remnant(
     for w in caught:
         if issubclass(w.category, FitRangeWarning):
             _common.err(f"warning: {w.message}")
+    ns_meta = result.attrs.get("gwdeficit.neutron_star")
+    if ns_meta:
+        summary["neutron_star"] = ns_meta
+        _common.err(f"note: {ns_meta['note']}")
     if as_json:
         _common.print_json(summary)
     else:
