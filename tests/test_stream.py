@@ -288,3 +288,64 @@ def test_row_progress_counts_rows():
     assert sum(seen) == 10
     with row_progress("rows", None, enabled=False) as advance:
         advance(5)  # a no-op
+
+
+# --------------------------------------------------------------------------------------------
+# Command line
+# --------------------------------------------------------------------------------------------
+
+
+@pytest.mark.filterwarnings("ignore::gwdeficit.fits.registry.FitRangeWarning")
+def test_cli_streams_inputs_larger_than_one_batch(synthetic, tmp_path):
+    import json
+
+    from typer.testing import CliRunner
+
+    from gwdeficit.cli import app
+
+    cat = str(synthetic["catalogue"])
+    runner = CliRunner()
+    whole = runner.invoke(app, ["remnant", cat, "--workdir", str(tmp_path / "a"), "--seed", "5"])
+    assert whole.exit_code == 0, whole.output
+    parts = runner.invoke(
+        app,
+        ["remnant", cat, "--workdir", str(tmp_path / "b"), "--seed", "5", "--batch-rows", "7000"],
+    )
+    assert parts.exit_code == 0, parts.output
+    a = wd.read_parquet(tmp_path / "a" / wd.REMNANTS_FILE)
+    b = wd.read_parquet(tmp_path / "b" / wd.REMNANTS_FILE)
+    pd.testing.assert_frame_equal(a, b, check_dtype=False)
+    assert b.attrs["gwdeficit.provenance"][-1]["params"]["batch_rows"] == 7000
+
+    res = runner.invoke(
+        app,
+        [
+            "rate",
+            "--workdir",
+            str(tmp_path / "b"),
+            "--draws",
+            "50",
+            "--batch-rows",
+            "7000",
+            "--json",
+        ],
+    )
+    assert res.exit_code == 0, res.output
+    out = json.loads(res.stdout)
+    assert out["counts"]["rows_in"] == len(b)
+    table = wd.read_parquet(tmp_path / "b" / wd.RATES_FILE)
+    assert table.attrs["gwdeficit.summary"]["engine"]["mode"] == "rows"
+
+
+def test_cli_engine_options_are_checked(synthetic, tmp_path):
+    from typer.testing import CliRunner
+
+    from gwdeficit.cli import app
+
+    runner = CliRunner()
+    cat = str(synthetic["catalogue"])
+    bad = runner.invoke(app, ["remnant", cat, "--workdir", str(tmp_path), "--engine", "gpu"])
+    assert bad.exit_code == 2 and "--engine 'gpu' is not known" in bad.output
+    bad = runner.invoke(app, ["remnant", cat, "--workdir", str(tmp_path), "--scheduler", "x:1"])
+    assert bad.exit_code == 2 and "--scheduler applies to --engine dask only" in bad.output
+    assert not (tmp_path / wd.REMNANTS_FILE).exists()
