@@ -130,6 +130,9 @@ def test_bad_units():
         conversion("flubs", "mass")
     with pytest.raises(UnitError, match="cannot be converted"):
         conversion("Mpc", "mass")
+    # 2 dex(Msun) is 100 Msun, not a scale factor (astropy logarithmic units): refused.
+    with pytest.raises(UnitError, match="logarithmic"):
+        conversion("dex(solMass)", "mass")
 
 
 def test_plan_units_from_header_metadata_option():

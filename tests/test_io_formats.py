@@ -14,7 +14,7 @@ from astropy.table import Table
 
 from gwdeficit.io import load_catalogue
 from gwdeficit.io.formats import detect_format, open_table
-from gwdeficit.schema import InputFileError, OptionError
+from gwdeficit.schema import InputFileError, OptionError, SchemaError
 
 UNITS = {"m1": "Msun", "m2": "Msun", "tilt1": "deg", "tilt2": "deg", "dL": "Mpc"}
 
@@ -163,3 +163,28 @@ def test_text_cells_are_not_altered_on_the_way_to_rejects(tmp_path):
     assert res.catalogue["m1_msun"].tolist() == [30.0]
     assert res.rejects.loc[0, "m1"] == "abc"
     assert res.rejects.loc[0, "input_row"] == 2
+
+
+def test_byte_order_mark_is_not_part_of_the_header(tmp_path):
+    # Spreadsheet programs write UTF-8 CSV with a byte-order mark (Unicode Standard; from memory).
+    p = tmp_path / "bom.csv"
+    p.write_bytes(b"\xef\xbb\xbfm1,m2,z\n30,20,0.1\n")
+    assert load_catalogue(p)["m1_msun"].tolist() == [30.0]
+
+
+def test_typed_columns_that_are_not_numbers_or_text(tmp_path):
+    base = {"m1": pa.array([30.0, 10.0]), "m2": pa.array([20.0, 5.0]), "z": pa.array([0.1, 0.2])}
+    p = tmp_path / "big.parquet"
+    pq.write_table(pa.table({**base, "m1": pa.array([2**64 - 1, 30], type=pa.uint64())}), p)
+    assert load_catalogue(p)["m1_msun"].iloc[0] == pytest.approx(2.0**64)
+    p = tmp_path / "list.parquet"
+    pq.write_table(pa.table({**base, "kind": pa.array([[1], [2]])}), p)
+    with pytest.raises(SchemaError, match="kind"):
+        load_catalogue(p)
+    p = tmp_path / "bytes.parquet"
+    pq.write_table(pa.table({**base, "event": pa.array([b"\xff\xfe", b"GW-B"])}), p)
+    from gwdeficit.io import ingest_table
+
+    res = ingest_table(p, on_bad="skip")
+    assert res.catalogue["event"].tolist() == ["GW-B"]
+    assert res.summary["rejects_by_reason"] == {"column 'event': label is not valid UTF-8 text": 1}

@@ -146,7 +146,8 @@ def _text_head(path: Path, comp: str | None, n_lines: int = 200) -> list[str]:
         raise InputFileError(f"{path}: {comp} compression is not supported for text tables")
     lines: list[str] = []
     try:
-        with opener(path, "rt", encoding="utf-8", newline="") as fh:
+        # utf-8-sig: a byte-order mark (as spreadsheet programs write) is not part of the header
+        with opener(path, "rt", encoding="utf-8-sig", newline="") as fh:
             for line in fh:
                 lines.append(line.rstrip("\r\n"))
                 if len(lines) >= n_lines:
@@ -230,7 +231,7 @@ def _read_text(path: Path, batch_rows: int, fmt: str = "text") -> RawTable:
                 comment=None,
                 compression=comp,
                 chunksize=batch_rows,
-                encoding="utf-8",
+                encoding="utf-8-sig",
                 engine="c",
                 index_col=False,
             )
@@ -339,7 +340,10 @@ def _column_to_arrow(name: str, col: object, path: Path) -> pa.Array:
     mask = np.ma.getmaskarray(data)
     values = np.ma.getdata(data)
     if values.dtype.kind == "S":
-        values = np.char.decode(values, "utf-8", errors="replace")
+        try:
+            values = np.char.decode(values, "utf-8")
+        except UnicodeDecodeError as exc:
+            raise InputFileError(f"{path}: column {name!r} holds text that is not UTF-8") from exc
     if values.dtype.kind == "U":
         values = np.char.strip(values)
         return pa.array(values.astype(object), type=pa.string(), mask=mask)

@@ -100,6 +100,11 @@ def conversion(text: str | None, dimension: str, what: str = "column") -> UnitCo
     if text is None:
         return UnitConversion(given=canonical, canonical=canonical, factor=1.0)
     unit = parse_unit(text, what)
+    if isinstance(unit, u.FunctionUnitBase):  # dex, mag, dB: not a scale factor
+        raise UnitError(
+            f"{what}: unit {text!r} is logarithmic; give the values in a linear unit "
+            f"({canonical or 'dimensionless'})"
+        )
     target = u.Unit(canonical) if canonical else u.dimensionless_unscaled
     try:
         factor = float(unit.to(target))

@@ -451,7 +451,8 @@ class _Batch:
             t = arr.type
         status = np.zeros(self.n, dtype=np.int8)
         if pa.types.is_integer(t) or pa.types.is_floating(t) or pa.types.is_decimal(t):
-            vals = np.asarray(arr.cast(pa.float64()).to_numpy(), dtype=np.float64)
+            # unsafe cast: integers beyond 2^53 become the nearest float64 instead of failing
+            vals = np.asarray(pc.cast(arr, pa.float64(), safe=False).to_numpy(), dtype=np.float64)
             nulls = arr.is_null().to_numpy() if arr.null_count else np.zeros(self.n, bool)
         elif pa.types.is_string(t) or pa.types.is_large_string(t):
             try:
@@ -494,11 +495,30 @@ class _Batch:
         import pyarrow as pa
         import pyarrow.compute as pc
 
-        arr = self.table.column(self.c._col(fld))
+        col = self.c._col(fld)
+        arr = self.table.column(col)
         if pa.types.is_dictionary(arr.type):
             arr = arr.cast(arr.type.value_type)
-        if not (pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type)):
+        t = arr.type
+        if pa.types.is_binary(t) or pa.types.is_large_binary(t):
+            try:
+                arr = arr.cast(pa.string())
+            except pa.ArrowInvalid:  # some cells are not UTF-8: those rows are rejected
+                cells = arr.to_pylist()
+                text: list[str | None] = []
+                bad = np.zeros(self.n, dtype=bool)
+                for i, b in enumerate(cells):
+                    try:
+                        text.append(None if b is None else b.decode("utf-8"))
+                    except UnicodeDecodeError:
+                        text.append(None)
+                        bad[i] = True
+                self.mark(bad, col, "label is not valid UTF-8 text")
+                arr = pa.chunked_array([pa.array(text, type=pa.string())])
+        elif pa.types.is_integer(t) or pa.types.is_floating(t):
             arr = pc.cast(arr, pa.string())
+        elif not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+            raise SchemaError(f"{self.c.path}: column {col!r} ({fld}) holds {t} values, not text")
         return pc.utf8_trim_whitespace(arr.cast(pa.string()))
 
     def _missing_str(self, arr: pa.ChunkedArray) -> np.ndarray:
