@@ -46,7 +46,7 @@ FIGURES_DIR = "figures"
 
 
 def resolve_workdir(workdir: str | os.PathLike[str] | None = None, create: bool = True) -> Path:
-    """Return the working folder: the argument, else ``$GWDEFICIT_WORKDIR``, else ``./gwdeficit-work``."""
+    """The working folder: the argument, else ``$GWDEFICIT_WORKDIR``, else ``./gwdeficit-work``."""
     chosen = workdir if workdir is not None else os.environ.get(ENV_WORKDIR) or DEFAULT_WORKDIR
     path = Path(chosen).expanduser()
     if path.exists() and not path.is_dir():
@@ -84,9 +84,7 @@ def clean_stale_temporaries(folder: Path) -> list[Path]:
     return removed
 
 
-def check_writable(
-    out: Path, force: bool, inputs: tuple[str | os.PathLike[str], ...] = ()
-) -> None:
+def check_writable(out: Path, force: bool, inputs: tuple[str | os.PathLike[str], ...] = ()) -> None:
     """Apply the output rules: never overwrite an input, never overwrite without ``force``."""
     out_r = Path(out).resolve()
     for inp in inputs:
@@ -137,7 +135,9 @@ def provenance_record(stage: str, inputs: Mapping[str, str] | None = None, **par
 
 
 def _encode_meta(meta: Mapping[str, Any]) -> dict[bytes, bytes]:
-    return {k.encode(): json.dumps(v, sort_keys=True, default=str).encode() for k, v in meta.items()}
+    return {
+        k.encode(): json.dumps(v, sort_keys=True, default=str).encode() for k, v in meta.items()
+    }
 
 
 def decode_meta(raw: Mapping[bytes, bytes] | None) -> dict[str, Any]:
@@ -181,11 +181,18 @@ def write_parquet(
     inputs: tuple[str | os.PathLike[str], ...] = (),
 ) -> Path:
     """Write ``df`` atomically as Parquet with JSON metadata; return the final path."""
+    import pyarrow as pa
     import pyarrow.parquet as pq
 
     table = table_from_frame(df, meta)
+    # Dictionary encoding pays off for label columns only; numeric columns are written plain.
+    labels = [
+        f.name
+        for f in table.schema
+        if pa.types.is_string(f.type) or pa.types.is_large_string(f.type)
+    ]
     with atomic_path(out, force=force, inputs=inputs) as tmp:
-        pq.write_table(table, tmp, compression="zstd")
+        pq.write_table(table, tmp, compression="zstd", use_dictionary=labels)
     return Path(out)
 
 
