@@ -26,14 +26,14 @@ from gwdeficit.workdir import TMP_PREFIX, write_parquet, write_text
 
 pytestmark = pytest.mark.skipif(os.name != "posix", reason="POSIX signals")
 
-# Child 1: the real writer, workdir.write_parquet, on a table large enough (~120 MB) that the
+# Child 1: the real writer, workdir.write_parquet, on a table large enough (~75 MB) that the
 # write takes a second or more on this machine, so the kill lands while the temporary grows.
 _CHILD_WRITE_PARQUET = """
 import sys
 import numpy as np, pandas as pd
 from gwdeficit.workdir import write_parquet
 rng = np.random.default_rng(20240601)
-n = 2_000_000
+n = 1_200_000
 df = pd.DataFrame({f"c{i}": rng.random(n) for i in range(8)})
 print("ready", flush=True)
 write_parquet(df, sys.argv[1], {"gwdeficit.test": "big"}, force=True)
