@@ -147,8 +147,12 @@ def run(args: list[str], label: str, quiet: bool = False) -> tuple[float, int]:
     if os.waitstatus_to_exitcode(status) != 0:
         raise SystemExit(f"{label} failed ({status}):\n{err}")
     rss = usage.ru_maxrss * 1024  # Linux: kilobytes
+    cpu = usage.ru_utime + usage.ru_stime
     if not quiet:
-        print(f"  {label:<28} {seconds:8.1f} s   peak RSS {rss / 1024**2:8.0f} MiB")
+        print(
+            f"  {label:<28} {seconds:8.1f} s wall {cpu:8.1f} s CPU   "
+            f"peak RSS {rss / 1024**2:8.0f} MiB"
+        )
     return seconds, rss
 
 
