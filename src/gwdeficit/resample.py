@@ -592,9 +592,30 @@ def run_bootstrap(
         if st.column not in pop.values:
             raise SchemaError(f"statistic {st.name!r}: column {st.column!r} was not prepared")
         by_column.setdefault(st.column, []).append(st)
+    # With one row per event (population-synthesis tables, point values) the posterior source
+    # changes nothing; it is then neither drawn nor evaluated (a property of the data, so every
+    # call on the same population consumes the same random numbers).
+    multi = bool(np.any(pop.counts > 1))
+    if not multi:
+        cfgs = [c - {"posterior"} for c in cfgs]
     need_means = any("posterior" not in c for c in cfgs)
-    den_e, num_e = _event_means(pop, stats) if need_means else (None, {})
+    if need_means:
+        den_e, num_e = _event_means(pop, stats)
+        w_den = pop.event_weight * den_e  # (events,)
+        w_num = {k: pop.event_weight[:, None] * v for k, v in num_e.items()}  # (events, alts)
+        tot_den = float(w_den.sum())
+        tot_num = {k: v.sum(axis=0) for k, v in w_num.items()}
+        # every stat's per-fit event totals side by side, the denominator last: one matrix
+        # product per chunk serves every catalogue-on configuration
+        names = [st.name for st in stats]
+        widths = [w_num[n].shape[1] for n in names]
+        col0 = dict(zip(names, np.cumsum([0, *widths])[:-1].tolist(), strict=True))
+        w_all = np.concatenate([*(w_num[n] for n in names), w_den[:, None]], axis=1)
     chunk = max(1, int(chunk_picks) // max(n_ev, 1))
+    if not multi:
+        # no per-pick gathers: larger chunks let one pass over the event totals serve several
+        # draws (the matrix product is memory-bound), within ~16 M picks per chunk
+        chunk = max(chunk, min(16, (16 * int(chunk_picks)) // max(n_ev, 1)))
     all_events = np.arange(n_ev, dtype=np.int64)
 
     flat = {c: v.ravel() for c, v in pop.values.items()}
@@ -612,13 +633,16 @@ def run_bootstrap(
         m = min(chunk, n_draws - b0)
         # Random ingredients of this chunk, drawn in a fixed order whatever is switched on.
         ev_cat = rng.integers(0, n_ev, size=(m, n_ev), dtype=idx_type)
-        ev_cat.sort(axis=1)  # order within a draw is irrelevant; sorted picks read memory in order
-        u_post = rng.random((m, n_ev))
+        u_post = None
+        if multi:
+            ev_cat.sort(axis=1)  # order within a draw is irrelevant; sorted picks read in order
+            u_post = rng.random((m, n_ev))
         f_fm = rng.integers(0, max(n_fm, 1), size=m)
         f_rc = rng.integers(0, max(n_rc, 1), size=m)
         zero = np.zeros(m, dtype=np.int64)
+        drawn = None  # (times each event is drawn) . (event totals), per draw
+        rows_m = np.arange(m)
         for cfg, res in zip(cfgs, out, strict=True):
-            ev = ev_cat if "catalogue" in cfg else np.broadcast_to(all_events, (m, n_ev))
             fits_on = "fits" in cfg
             alt = {
                 "final_mass": (1 + f_fm) if (fits_on and n_fm) else zero,
@@ -627,6 +651,7 @@ def run_bootstrap(
             }
             sl = slice(b0, b0 + m)
             if "posterior" in cfg:
+                ev = ev_cat if "catalogue" in cfg else np.broadcast_to(all_events, (m, n_ev))
                 rows = _pick_rows(pop, ev, u_post)
                 if unit:
                     wgt, den = None, np.full(m, float(n_ev))
@@ -654,15 +679,21 @@ def run_bootstrap(
                             y = x < st.threshold
                         tot = y.sum(axis=1) if wgt is None else (wgt * y).sum(axis=1)
                         res[st.name][sl] = tot / den
-            else:
-                W = pop.event_weight[ev]
-                den = (W * den_e[ev]).sum(axis=1)
+            elif "catalogue" in cfg:
+                # sum over drawn events = (times drawn) . (event totals): one matrix product
+                # gives every fit alternative at once
+                if drawn is None:
+                    offsets = (rows_m * n_ev)[:, None]
+                    times = np.bincount((ev_cat + offsets).ravel(), minlength=m * n_ev)
+                    drawn = times.reshape(m, n_ev).astype(np.float64) @ w_all
+                den = drawn[:, -1]
                 for st in stats:
                     a = alt[_COLUMN_FAMILY.get(st.column)]
-                    means = num_e[st.name]
-                    k = means.shape[1]
-                    pos = ev * k + a[:, None] if k > 1 else ev
-                    res[st.name][sl] = (W * means.ravel().take(pos)).sum(axis=1) / den
+                    res[st.name][sl] = drawn[rows_m, col0[st.name] + a] / den
+            else:
+                for st in stats:
+                    a = alt[_COLUMN_FAMILY.get(st.column)]
+                    res[st.name][sl] = tot_num[st.name][a] / tot_den
         if progress is not None:
             progress(m)
     return out
