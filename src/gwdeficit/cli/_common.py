@@ -55,7 +55,12 @@ SchedulerOpt = Annotated[
     ),
 ]
 BatchRowsOpt = Annotated[
-    int, typer.Option("--batch-rows", help="Rows per batch or partition (bounds memory).")
+    int,
+    typer.Option(
+        "--batch-rows",
+        help="Rows per batch or partition (bounds memory); larger inputs are processed "
+        "batch by batch.",
+    ),
 ]
 
 
