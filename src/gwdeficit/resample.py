@@ -683,9 +683,10 @@ def run_bootstrap(
                 # sum over drawn events = (times drawn) . (event totals): one matrix product
                 # gives every fit alternative at once
                 if drawn is None:
-                    offsets = (rows_m * n_ev)[:, None]
-                    times = np.bincount((ev_cat + offsets).ravel(), minlength=m * n_ev)
-                    drawn = times.reshape(m, n_ev).astype(np.float64) @ w_all
+                    times = np.empty((m, n_ev))
+                    for i in range(m):  # per draw of the chunk: bins stay cache-sized
+                        times[i] = np.bincount(ev_cat[i], minlength=n_ev)
+                    drawn = times @ w_all
                 den = drawn[:, -1]
                 for st in stats:
                     a = alt[_COLUMN_FAMILY.get(st.column)]
