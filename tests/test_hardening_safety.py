@@ -197,3 +197,76 @@ def test_scanner_flags_unsafe_snippet(snippet):
 @pytest.mark.parametrize("snippet", SAFE_SNIPPETS)
 def test_scanner_accepts_safe_snippet(snippet):
     assert audit_source(snippet) == []
+
+
+# -- paths inside files are data ----------------------------------------------------------------
+
+_OPENED: list[str] = []
+_RECORDING = [False]
+
+
+def _audit(event: str, args: tuple) -> None:
+    if _RECORDING[0] and event in ("open", "os.listdir", "os.scandir", "subprocess.Popen"):
+        _OPENED.append(f"{event}:{args[0]!s}")
+
+
+def test_paths_in_metadata_are_never_opened_or_executed(tmp_path, monkeypatch):
+    """Provenance paths and names in a table's metadata are carried forward, not followed.
+
+    A remnants table is given metadata naming a file outside the working folder and a
+    shell-command string; ``rate`` and ``plot`` must run without opening either (Python audit
+    hooks, PEP 578, see every open() and subprocess start) and without running the command.
+    """
+    import json
+    import sys
+
+    import numpy as np
+    import pandas as pd
+    import pyarrow.parquet as pq
+    from typer.testing import CliRunner
+
+    from gwdeficit.cli import app
+
+    runner = CliRunner()
+    work = tmp_path / "work"
+    rng = np.random.default_rng(3)
+    m1 = rng.uniform(5, 50, 30)
+    src = tmp_path / "in.csv"
+    pd.DataFrame(
+        {"event": np.repeat(["A", "B", "C"], 10), "m1": m1, "m2": 0.7 * m1, "z": 0.2}
+    ).to_csv(src, index=False)
+    for args in (["ingest", str(src)], ["remnant"]):
+        assert runner.invoke(app, [*args, "--workdir", str(work)]).exit_code == 0
+
+    outside = tmp_path / "outside" / "secret.parquet"  # does not exist: reading it would fail
+    marker = tmp_path / "pwned"
+    command = f"$(touch {marker}); touch {marker}"
+    rem = work / "remnants.parquet"
+    table = pq.read_table(rem)
+    meta = dict(table.schema.metadata)
+    prov = json.loads(meta[b"gwdeficit.provenance"])
+    prov[-1]["inputs"] = {str(outside): "0" * 64, command: "0" * 64, "../../etc/passwd": "0"}
+    prov[-1]["command"] = ["sh", "-c", command]
+    meta[b"gwdeficit.provenance"] = json.dumps(prov).encode()
+    pq.write_table(table.replace_schema_metadata(meta), rem)
+
+    if _audit not in getattr(sys, "_gwdeficit_hooks", []):
+        sys.addaudithook(_audit)
+        sys._gwdeficit_hooks = [*getattr(sys, "_gwdeficit_hooks", []), _audit]
+    _OPENED.clear()
+    _RECORDING[0] = True
+    try:
+        r1 = runner.invoke(app, ["rate", "--workdir", str(work), "--draws", "50"])
+        r2 = runner.invoke(app, ["plot", "--workdir", str(work)])
+    finally:
+        _RECORDING[0] = False
+    assert r1.exit_code == 0, r1.output
+    assert r2.exit_code == 0, r2.output
+    assert not marker.exists(), "a command from the metadata was executed"
+    assert any(str(work) in p for p in _OPENED), "the audit hook saw no file at all"
+    touched = [p for p in _OPENED if "outside" in p or "passwd" in p or "pwned" in p]
+    assert touched == [], touched
+    assert not any(p.startswith("subprocess.Popen") for p in _OPENED)
+    # carried forward as data
+    carried = json.loads(pq.read_schema(work / "rates.parquet").metadata[b"gwdeficit.provenance"])
+    assert command in carried[1]["inputs"]
