@@ -104,7 +104,7 @@ def main(n_events: int, n_samples: int, n_draws: int, weighted: bool = False) ->
 
     print(
         f"table: {n_events} events x {n_samples} samples = {len(df)} rows, B = {n_draws}, "
-        + ("unequal sample weights (searchsorted path)" if weighted else "equal sample weights")
+        + ("unequal sample weights (guide-table search)" if weighted else "equal sample weights")
     )
     print(f"build invented table      {t_build:7.2f} s")
     print(f"prepare_population        {t_prep:7.2f} s")
