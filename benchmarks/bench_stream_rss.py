@@ -161,7 +161,7 @@ def main() -> None:
     parser.add_argument("what", choices=["chain", "stages"])
     parser.add_argument("rows", type=float)
     parser.add_argument("--draws", type=int, default=2000)
-    parser.add_argument("--batch-rows", type=int, default=1 << 18)
+    parser.add_argument("--batch-rows", type=int, default=1 << 16)
     parser.add_argument("--tmp", default=None, help="parent folder of the temporary data")
     parser.add_argument("--keep", action="store_true")
     a = parser.parse_args()

@@ -83,7 +83,7 @@ __all__ = [
     "stream_remnants",
 ]
 
-DEFAULT_BATCH_ROWS = 1 << 18  # ~0.8 GB peak for the remnant stage (benchmarks)
+DEFAULT_BATCH_ROWS = 1 << 16  # peak RSS ~0.65 GB per stage (benchmarks/bench_stream_rss.py)
 #: Rows per block of the counter-based per-row draws (fixed: independent of the batch size).
 KEY_BLOCK_ROWS = 1 << 16
 #: Groups of the random-group Poisson bootstrap (rows mode).
@@ -195,11 +195,13 @@ def _open(path: str | os.PathLike[str], batch_rows: int, columns: Sequence[str] 
 
     def batches() -> Iterator[pa.Table]:
         try:
+            # little read-ahead, no pre-buffering: memory stays near one batch
             for rb in dataset.to_batches(
                 columns=list(columns),
                 batch_size=batch_rows,
                 batch_readahead=1,
                 fragment_readahead=1,
+                fragment_scan_options=ds.ParquetFragmentScanOptions(pre_buffer=False),
             ):
                 if rb.num_rows:
                     yield pa.Table.from_batches([rb])

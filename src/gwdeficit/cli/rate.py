@@ -268,7 +268,7 @@ def rate(
     keep_draws: KeepDrawsOpt = False,
     engine: EngineOpt = "local",
     scheduler: SchedulerOpt = None,
-    batch_rows: BatchRowsOpt = 1 << 18,  # gwdeficit.stream.DEFAULT_BATCH_ROWS
+    batch_rows: BatchRowsOpt = 1 << 16,  # gwdeficit.stream.DEFAULT_BATCH_ROWS
     workdir: WorkdirOpt = None,
     force: ForceOpt = False,
     as_json: JsonOpt = False,

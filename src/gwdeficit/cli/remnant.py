@@ -60,7 +60,7 @@ def remnant(
     seed: _common.SeedOpt = 0,
     engine: _common.EngineOpt = "local",
     scheduler: _common.SchedulerOpt = None,
-    batch_rows: _common.BatchRowsOpt = 1 << 18,  # gwdeficit.stream.DEFAULT_BATCH_ROWS
+    batch_rows: _common.BatchRowsOpt = 1 << 16,  # gwdeficit.stream.DEFAULT_BATCH_ROWS
     ns_radius: Annotated[
         float | None,
         typer.Option(
