@@ -478,6 +478,7 @@ def hostile_cases(draw) -> Case:
                     ambiguous |= set(range(1, n + 1))
             else:  # a mass column that holds no numbers at all
                 retype[next(k for k, c in enumerate(cols) if c.field == "m1")] = kind
+                must_reject = set()  # the new column replaces every m1 cell, mutated or not
                 if outcome == "load":  # (the type is only seen once a batch holds rows)
                     outcome = "either" if kind == "huge-uint64" or n == 0 else "error"
                 ambiguous |= set(range(1, n + 1))

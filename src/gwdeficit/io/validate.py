@@ -17,6 +17,7 @@ kinds, and redundant columns that disagree with the primary parametrisation by m
 
 from __future__ import annotations
 
+import contextlib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -462,7 +463,14 @@ class _Batch:
             except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
                 s = pd.Series(arr.to_pandas(), dtype=object)
                 stripped = s.str.strip()
-                vals = pd.to_numeric(stripped, errors="coerce").to_numpy(dtype=np.float64)
+                vals = np.array(pd.to_numeric(stripped, errors="coerce"), dtype=np.float64)
+                finite = np.isfinite(vals)
+                if finite.any():
+                    # pandas' parser misrounds some spellings (a leading '+': 1 ulp off); the
+                    # cells it accepted are re-read with Arrow's correctly rounded parser.
+                    cells = pa.array(stripped[finite].to_numpy(dtype=object), type=pa.string())
+                    with contextlib.suppress(pa.ArrowInvalid, pa.ArrowNotImplementedError):
+                        vals[finite] = pc.cast(cells, pa.float64()).to_numpy()
                 low = stripped.str.lower()
                 nulls = (s.isna() | stripped.eq("") | low.isin(("nan", "+nan", "-nan"))).to_numpy(
                     dtype=bool
