@@ -63,7 +63,7 @@ FigureOpt = Annotated[
 
 def _rate_models(rate_args: dict[str, Any], kinds: list[str]) -> Any:
     """The rate model(s) for :func:`gwdeficit.cosmic.cosmic_budget` from the rate options as
-    parsed by the rate command (``cli.rate._rate_arguments``): one model for the whole table,
+    parsed by the rate command (``cli._inputs.rate_arguments``): one model for the whole table,
     or one per kind (given, or the published defaults of the kinds present)."""
     from dataclasses import replace
 
@@ -132,57 +132,6 @@ def _print_summary(summary: dict[str, Any], out: Path, figure: Path | None) -> N
     )
 
 
-def _load_remnants(
-    file: Path | None, folder: Path, seed: int, force: bool, outputs: tuple[Path | None, ...]
-) -> tuple[Path, Any]:
-    """The remnants table: FILE, else <workdir>/remnants.parquet, else computed from the
-    catalogue (FILE, or <workdir>/catalogue.parquet) and written to <workdir>/remnants.parquet.
-    Checks that every output may be written before any work is done."""
-    import warnings
-
-    from gwdeficit import workdir as wd
-    from gwdeficit.schema import InputFileError, SchemaError
-
-    if file is not None:
-        path = Path(file)
-    elif (folder / wd.REMNANTS_FILE).exists():
-        path = folder / wd.REMNANTS_FILE
-    else:
-        path = folder / wd.CATALOGUE_FILE
-    if not path.exists():
-        hint = (
-            ""
-            if file is not None
-            else " (run 'gwdeficit ingest' and 'gwdeficit remnant', or give FILE)"
-        )
-        raise InputFileError(f"{path}: no such file{hint}")
-    for o in outputs:
-        if o is not None:
-            wd.check_writable(o, force, inputs=(path,))
-    df = wd.read_parquet(path)
-    if "kind" not in df.columns:
-        raise SchemaError(f"{path}: no 'kind' column; not a catalogue or remnants table")
-    if "deficit_msun" in df.columns:
-        return path, df
-    # A catalogue: compute the remnants first, as 'gwdeficit remnant' would.
-    from gwdeficit.fits.registry import FitRangeWarning
-    from gwdeficit.remnant import compute_remnants
-
-    rem_out = folder / wd.REMNANTS_FILE
-    wd.check_writable(rem_out, force, inputs=(path,))
-    err(f"{path} is a catalogue: computing its remnants first ({rem_out})")
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FitRangeWarning)
-        rem = compute_remnants(
-            df, seed=seed, source=str(path), inputs={str(path): wd.file_sha256(path)}
-        )
-    for w in caught:
-        if issubclass(w.category, FitRangeWarning):
-            err(f"warning: {w.message}")
-    wd.write_parquet(rem, rem_out, rem.attrs, force=force, inputs=(path,))
-    return rem_out, wd.read_parquet(rem_out)
-
-
 @handles_errors
 def cosmic(
     file: FileArg = None,
@@ -212,15 +161,15 @@ def cosmic(
     cumulative mass loss against lookback time, and prints the totals.
     """
     from gwdeficit import workdir as wd
-    from gwdeficit.cli.rate import _rate_arguments
+    from gwdeficit.cli._inputs import load_remnants, rate_arguments
     from gwdeficit.cosmic import cosmic_budget
     from gwdeficit.resample import event_kinds
 
-    rate_args = _rate_arguments(rate, rate_samples, rate_kind, rate_unit, evolution, kappa, rate_z)
+    rate_args = rate_arguments(rate, rate_samples, rate_kind, rate_unit, evolution, kappa, rate_z)
     folder = wd.resolve_workdir(workdir)
     out = folder / wd.COSMIC_FILE
     fig_path = folder / wd.FIGURES_DIR / "cosmic_mass_loss.png"
-    path, remnants = _load_remnants(file, folder, seed, force, (out, fig_path if figure else None))
+    path, remnants = load_remnants(file, folder, seed, force, (out, fig_path if figure else None))
     kinds = sorted(set(event_kinds(remnants).astype(str)))  # each event in its majority kind
     models = _rate_models(rate_args, kinds)
     result = cosmic_budget(

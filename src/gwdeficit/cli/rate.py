@@ -20,7 +20,6 @@ from gwdeficit.cli._common import (
     check_engine,
     err,
     handles_errors,
-    parse_pairs,
     print_json,
     split_list,
 )
@@ -142,51 +141,6 @@ def _floats(items: list[str] | None, option: str) -> list[float]:
     return out
 
 
-def _rate_arguments(
-    rate: str | None,
-    rate_samples: str | None,
-    rate_kind: list[str] | None,
-    unit: str,
-    evolution: str,
-    kappa: float | None,
-    rate_z: float | None,
-) -> dict[str, Any]:
-    """Keyword arguments of :func:`gwdeficit.budget.compute_budget` for the rate options."""
-    from gwdeficit.rates import (
-        RATE_UNIT,
-        RateEvolution,
-        load_rate_samples,
-        parse_kind_rates,
-        parse_rate,
-    )
-    from gwdeficit.schema import OptionError
-
-    if evolution == "powerlaw" and kappa is None:
-        raise OptionError("--evolution powerlaw needs --kappa K (the index of (1+z)^K)")
-    if evolution != "powerlaw" and kappa is not None:
-        raise OptionError(f"--kappa applies to --evolution powerlaw only (got {evolution!r})")
-    evo = RateEvolution(evolution, 0.0 if kappa is None else kappa, rate_z or 0.0)
-    per_kind = parse_pairs(rate_kind, "--rate-kind")
-    given = [n for n, v in (("--rate", rate), ("--rate-samples", rate_samples)) if v]
-    if per_kind:
-        given.append("--rate-kind")
-    if len(given) > 1:
-        raise OptionError(
-            f"give one of --rate, --rate-samples (whole table) or --rate-kind (per kind); got "
-            f"{' and '.join(given)}"
-        )
-    if not given and unit != RATE_UNIT:
-        raise OptionError(f"--rate-unit {unit!r} applies to a given rate; none given")
-    if rate is not None:
-        return {"rate": parse_rate(rate, unit=unit, evolution=evo)}
-    if rate_samples is not None:
-        return {"rate": load_rate_samples(rate_samples, unit=unit, evolution=evo)}
-    if per_kind:
-        return {"rates_by_kind": parse_kind_rates(per_kind, unit=unit, evolution=evo)}
-    # Defaults per kind: they keep their own reference redshift unless --rate-z is given.
-    return {"evolution": evo, "default_rate_z": rate_z}
-
-
 def _pct(x: float) -> str:
     return "-" if not math.isfinite(x) else f"{100 * x:.0f}"
 
@@ -282,12 +236,12 @@ def rate(
     """
     from gwdeficit import workdir as wd
     from gwdeficit.budget import compute_budget
-    from gwdeficit.cli.cosmic import _load_remnants
+    from gwdeficit.cli._inputs import load_remnants, rate_arguments
     from gwdeficit.volumes import parse_volumes
 
     vols = parse_volumes(split_list(volume) or ["mw"])
     speeds = _floats(escape_speed, "--escape-speed")
-    rate_args = _rate_arguments(rate, rate_samples, rate_kind, rate_unit, evolution, kappa, rate_z)
+    rate_args = rate_arguments(rate, rate_samples, rate_kind, rate_unit, evolution, kappa, rate_z)
     folder = wd.resolve_workdir(workdir)
     out = folder / wd.RATES_FILE
     draws_out = folder / wd.DRAWS_FILE if keep_draws else None
@@ -296,7 +250,7 @@ def rate(
         file, folder, engine_name, scheduler, seed, batch_rows, force, as_json, (out, draws_out)
     )
     if streamed is None:
-        path, remnants = _load_remnants(file, folder, seed, force, (out, draws_out))
+        path, remnants = load_remnants(file, folder, seed, force, (out, draws_out))
     else:  # larger than one batch, or on a cluster: out of core (gwdeficit.stream)
         path, remnants = streamed, None
 
@@ -378,7 +332,7 @@ def _streamed_input(
     """The remnants file for the out-of-core rate stage, or None for the in-memory path.
 
     Out of core with --engine dask, or when the input has more rows than --batch-rows. The
-    input is resolved as in :func:`gwdeficit.cli.cosmic._load_remnants`; a catalogue gets its
+    input is resolved as in :func:`gwdeficit.cli._inputs.load_remnants`; a catalogue gets its
     remnants computed first, batch by batch, into <workdir>/remnants.parquet.
     """
     import warnings
