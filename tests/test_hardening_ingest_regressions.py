@@ -135,3 +135,28 @@ def test_plus_signed_numbers_are_not_misrounded_next_to_a_bad_cell(tmp_path):
     got = res.catalogue.sort_values("input_row")
     want = np.maximum([float(f"+{float(v)!r}") for v in x], 1.0)
     assert np.array_equal(got["m1_msun"].to_numpy(), want)
+
+
+@pytest.mark.parametrize("column", ["event", "notes"])
+def test_string_column_with_invalid_utf8_bytes_is_a_typed_error(tmp_path, column):
+    # Found by the fuzzing (byte flips in Parquet/Feather): Arrow does not validate UTF-8 on
+    # read, and ArrowInvalid escaped from the label conversion (or from writing the rejects).
+    # Fixed in io/validate.py, _Batch._check_text.
+    table = pa.table(
+        {
+            "event": ["AAAAQQQQ", "BBBBQQQQ"],
+            "m1": [30.0, -20.0],
+            "m2": [10.0, 5.0],
+            "z": [0.1, 0.2],
+            "notes": ["ZZZZZZZZ", "YYYYYYYY"],
+        }
+    )
+    sink = pa.BufferOutputStream()
+    pq.write_table(table, sink, compression="none")
+    data = bytearray(sink.getvalue().to_pybytes())
+    data[data.find(b"AAAAQQQQ" if column == "event" else b"ZZZZZZZZ")] = 0xFF
+    p = tmp_path / "damaged.parquet"
+    p.write_bytes(bytes(data))
+    for on_bad in ("error", "skip"):
+        with pytest.raises(GwdeficitError, match=f"'{column}'.*UTF-8"):
+            ingest_table(p, on_bad=on_bad)

@@ -32,6 +32,7 @@ from gwdeficit.schema import (
     KINDS,
     SPIN_ASSUMPTIONS,
     BadRowsError,
+    InputFileError,
     OptionError,
     SchemaError,
 )
@@ -420,6 +421,24 @@ class _Batch:
         self.rows = np.arange(first_row, first_row + self.n, dtype=np.int64)
         self.code = np.zeros(self.n, dtype=np.int32)
         self.first_row = first_row
+        self._check_text()
+
+    def _check_text(self) -> None:
+        """Text columns must hold valid UTF-8 (Arrow does not check on read; a damaged or
+        carelessly written Parquet/Feather file can break that promise)."""
+        import pyarrow as pa
+
+        for name, col in zip(self.table.column_names, self.table.columns, strict=True):
+            t = col.type.value_type if pa.types.is_dictionary(col.type) else col.type
+            if pa.types.is_string(t) or pa.types.is_large_string(t):
+                try:
+                    col.validate(full=True)
+                except pa.ArrowInvalid as exc:
+                    last = self.first_row + self.n - 1
+                    raise InputFileError(
+                        f"{self.c.path}: column {name!r} holds text that is not valid UTF-8 "
+                        f"(among data rows {self.first_row}..{last}); the file may be damaged"
+                    ) from exc
 
     # -- marking --------------------------------------------------------------------------
 
