@@ -169,3 +169,62 @@ def test_real_entry_point_exit_codes():
     assert bad.returncode == 2
     assert "Traceback" not in bad.stderr
     assert _gwdeficit("no-such-command").returncode == 2
+
+
+# -- real commands on hand-made (hostile) catalogues: exit 0 or 2, never 1 -----------------------
+
+
+@pytest.fixture(scope="module")
+def catalogue(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("cat")
+    src = folder / "in.csv"
+    src.write_text(
+        "event,m1,m2,chi1,chi2,tilt1,tilt2,z\nA,30,20,0.1,0.2,0.3,0.4,0.1\n"
+        "A,31,19,0.1,0.2,0.3,0.4,0.1\nB,10,5,0.5,0.5,1,1,0.5\n"
+    )
+    res = CliRunner().invoke(cli.app, ["ingest", str(src), "--workdir", str(folder / "w")])
+    assert res.exit_code == 0, res.output
+    return folder / "w" / "catalogue.parquet"
+
+
+def _hostile_catalogue(path, tmp_path, change: str):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    t = pq.read_table(path)
+    i = t.schema.get_field_index("m1_msun")
+    n = t.num_rows
+    column = {
+        "text": pa.array(["a"] * n),
+        "bool": pa.array([True] * n),
+        "list": pa.array([[1.0]] * n),
+        "null": pa.nulls(n, pa.float64()),
+        "negative": pa.array([-1.0] * n),
+        "inf": pa.array([float("inf")] * n),
+    }.get(change)
+    if change == "missing":
+        t = t.remove_column(i)
+    elif change == "kind":
+        t = t.set_column(t.schema.get_field_index("kind"), "kind", pa.array(["XYZ"] * n))
+    elif change == "empty":
+        t = t.slice(0, 0)
+    else:
+        t = t.set_column(i, "m1_msun", column)
+    out = tmp_path / f"{change}.parquet"
+    pq.write_table(t, out)
+    return out
+
+
+@pytest.mark.parametrize("command", ["remnant", "rate"])
+@pytest.mark.parametrize(
+    "change", ["text", "bool", "list", "null", "negative", "inf", "missing", "kind", "empty"]
+)
+def test_hand_made_catalogues_give_exit_0_or_2(catalogue, tmp_path, command, change, monkeypatch):
+    monkeypatch.setattr(_common.STATE, "debug", False)
+    path = _hostile_catalogue(catalogue, tmp_path, change)
+    extra = ["--draws", "20"] if command == "rate" else []
+    res = runner.invoke(cli.app, [command, str(path), "--workdir", str(tmp_path / "w"), *extra])
+    assert res.exit_code in (0, 2), res.output
+    assert "internal error" not in res.output
+    if res.exit_code == 2:
+        assert res.stderr.startswith("error: ") or "\nerror: " in res.stderr

@@ -730,7 +730,15 @@ def compute_remnants(
         raise RemnantInputError(
             src, "kind", f"kind not one of {', '.join(KINDS)}", labels[bad_kind].tolist()
         )
-    values = {c: df[c].to_numpy(dtype=np.float64, na_value=np.nan) for c in _INPUT_COLUMNS}
+    values = {}
+    for c in _INPUT_COLUMNS:
+        try:
+            values[c] = df[c].to_numpy(dtype=np.float64, na_value=np.nan)
+        except (ValueError, TypeError) as exc:  # a hand-made table with text in a number column
+            raise schema.SchemaError(
+                f"{src}: column {c!r} does not hold numbers ({exc}); make the catalogue with "
+                "'gwdeficit ingest'"
+            ) from exc
     gen = rng if rng is not None else np.random.default_rng(seed)
     is_bbh = kinds == "BBH"
     # Rows that may meet the black-hole fits: BBH, and NSBH in their no-disruption limit.
