@@ -19,6 +19,8 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+from binaries import random_binaries
+
 pytest.importorskip(
     "distributed", reason="the optional dask extra is not installed (pip install 'gwdeficit[dask]')"
 )
@@ -34,27 +36,6 @@ pytestmark = [
 ]
 
 NUMERIC = ["median", "lo68", "hi68", "lo90", "hi90"]
-
-
-def _binaries(n: int, n_events: int, seed: int) -> pd.DataFrame:
-    rng = np.random.default_rng(seed)
-    m1 = rng.uniform(5.0, 80.0, n)
-    df = pd.DataFrame(
-        {
-            "m1_msun": m1,
-            "m2_msun": m1 * rng.uniform(0.1, 1.0, n),
-            "chi1": rng.uniform(0.0, 0.99, n),
-            "chi2": rng.uniform(0.0, 0.99, n),
-            "tilt1_rad": np.arccos(rng.uniform(-1.0, 1.0, n)),
-            "tilt2_rad": np.arccos(rng.uniform(-1.0, 1.0, n)),
-            "z": rng.uniform(0.01, 1.0, n),
-            "weight": rng.uniform(0.5, 2.0, n),
-        }
-    )
-    df.loc[df.index % 4 == 0, "m2_msun"] = 1.4
-    if n_events:
-        df["event"] = [f"EV{k:03d}" for k in rng.integers(0, n_events, n)]
-    return df
 
 
 def _prepare(root: Path, df: pd.DataFrame) -> dict[str, Path]:
@@ -82,8 +63,12 @@ def _prepare(root: Path, df: pd.DataFrame) -> dict[str, Path]:
 def data(tmp_path_factory) -> dict[str, dict[str, Path]]:
     root = tmp_path_factory.mktemp("dask")
     return {
-        "events": _prepare(root / "events", _binaries(8_000, 40, seed=21)),
-        "rows": _prepare(root / "rows", _binaries(8_000, 0, seed=22)),
+        "events": _prepare(
+            root / "events", random_binaries(8_000, 40, seed=21, ns_every=4, label_digits=3)
+        ),
+        "rows": _prepare(
+            root / "rows", random_binaries(8_000, 0, seed=22, ns_every=4, label_digits=3)
+        ),
     }
 
 

@@ -18,6 +18,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
+from binaries import random_binaries
 from gwdeficit import workdir as wd
 from gwdeficit.budget import compute_budget
 from gwdeficit.io import IngestOptions, ingest
@@ -33,28 +34,6 @@ from gwdeficit.stream import (
 )
 
 NUMERIC = ["median", "lo68", "hi68", "lo90", "hi90"]
-
-
-def _binaries(n: int, n_events: int, seed: int) -> pd.DataFrame:
-    """Random binaries over a wide parameter range (a third of them NSBH-like)."""
-    rng = np.random.default_rng(seed)
-    m1 = rng.uniform(5.0, 80.0, n)
-    df = pd.DataFrame(
-        {
-            "m1_msun": m1,
-            "m2_msun": m1 * rng.uniform(0.1, 1.0, n),
-            "chi1": rng.uniform(0.0, 0.99, n),
-            "chi2": rng.uniform(0.0, 0.99, n),
-            "tilt1_rad": np.arccos(rng.uniform(-1.0, 1.0, n)),
-            "tilt2_rad": np.arccos(rng.uniform(-1.0, 1.0, n)),
-            "z": rng.uniform(0.01, 1.0, n),
-            "weight": rng.uniform(0.5, 2.0, n),
-        }
-    )
-    df.loc[df.index % 3 == 0, "m2_msun"] = 1.4
-    if n_events:
-        df["event"] = [f"EV{k:04d}" for k in rng.integers(0, n_events, n)]
-    return df
 
 
 def _dataset(folder: Path, df: pd.DataFrame, n_files: int) -> Path:
@@ -78,7 +57,7 @@ def _remnants_in_memory(catalogue: Path, out: Path, seed: int) -> pd.DataFrame:
 def posterior(tmp_path_factory) -> dict[str, Path]:
     """A 2e5-row, 4-file posterior-style dataset (80 events), ingested, with remnants."""
     root = tmp_path_factory.mktemp("posterior")
-    src = _dataset(root / "input", _binaries(200_000, 80, seed=11), 4)
+    src = _dataset(root / "input", random_binaries(200_000, 80, seed=11), 4)
     ingest(src, root, options=IngestOptions(batch_rows=50_000))
     cat = root / wd.CATALOGUE_FILE
     _remnants_in_memory(cat, root / "remnants_mem.parquet", seed=5)
@@ -89,7 +68,7 @@ def posterior(tmp_path_factory) -> dict[str, Path]:
 def synthetic(tmp_path_factory) -> dict[str, Path]:
     """A 3e4-row weighted synthetic table without an event column, ingested, with remnants."""
     root = tmp_path_factory.mktemp("synthetic")
-    src = _dataset(root / "input", _binaries(30_000, 0, seed=12), 3)
+    src = _dataset(root / "input", random_binaries(30_000, 0, seed=12), 3)
     ingest(src, root)
     cat = root / wd.CATALOGUE_FILE
     rem = _remnants_in_memory(cat, root / "remnants_mem.parquet", seed=5)
