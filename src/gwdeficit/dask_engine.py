@@ -27,7 +27,7 @@ from __future__ import annotations
 import contextlib
 import os
 from collections import deque
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -211,10 +211,15 @@ def dask_remnants(
     force: bool = False,
     progress: Callable[[int], None] | None = None,
     inputs: dict[str, str] | None = None,
+    ns_options: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
     """:func:`gwdeficit.stream.stream_remnants` with the batches computed on the cluster.
 
-    Same output file, metadata (provenance names the engine ``dask``) and summary.
+    Same output file, metadata (provenance names the engine ``dask``), warnings and summary;
+    ``ns_options`` are the neutron-star keywords of ``compute_remnants``, shipped to every
+    task with the job. The client reads the catalogue's ``kind`` column once beforehand
+    (:func:`gwdeficit.stream.has_neutron_stars`, row groups all BBH by their statistics are
+    skipped).
     """
     import dask
 
@@ -235,6 +240,8 @@ def dask_remnants(
         stream.read_metadata(cat),
         src,
         dict(inputs) if inputs is not None else {src: wd.file_sha256(cat)},
+        ns_options=stream._ns_options(ns_options),
+        has_ns=stream.has_neutron_stars(cat),
     )
     task = dask.delayed(_piece_task, pure=True)
     tasks = (task(_run_job, p, None, (job,)) for p in parts)

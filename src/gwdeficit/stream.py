@@ -13,7 +13,14 @@ batch size (``batch_rows``) and, for the rate stage, by the sizes listed below.
   in-memory path gives it: ``compute_remnants`` draws the kick phases of all ``n`` rows from
   ``default_rng(seed)`` and then ``n`` replacements for missing phi12, so a batch starting at
   row ``o`` reads PCG64 outputs ``o..`` and ``n + o..`` (``PCG64.advance``; one output per
-  double). Results are identical to the in-memory path whatever the batch size. The summary's
+  double). Results are identical to the in-memory path whatever the batch size, except the
+  last bit of a BNS row's inspiral energy (``erad_msun``, and ``erad_frac``, ``deficit_msun``,
+  ``mf_msun``): its Newton iteration (``gwdeficit.fits.bns.x_energy_minimum``) stops when all
+  rows of the array have converged, so the other rows of a batch matter. Neutron-star
+  options (``ns_options``) go to every batch; when any row of the catalogue is a neutron-star
+  kind (found by a pre-pass over the ``kind`` column, skipping row groups whose statistics say
+  all BBH), batches without one get the neutron-star columns with the values the in-memory
+  path gives black-hole rows, so every batch has the whole table's columns. The summary's
   deficit quantiles are exact order statistics found by a radix histogram over the float bits
   (two or more passes over one column of the written file), not approximations.
 - :func:`stream_budget`: remnants -> the rate stage's :class:`gwdeficit.budget.RateBudget`
@@ -76,6 +83,7 @@ __all__ = [
     "POISSON_GROUPS",
     "StreamPopulations",
     "exact_quantiles",
+    "has_neutron_stars",
     "read_metadata",
     "row_progress",
     "stream_budget",
@@ -281,6 +289,9 @@ class _RemnantTally:
     kinds: dict[str, int] = field(default_factory=dict)
     status: dict[str, int] = field(default_factory=dict)
     outside_by_fit: dict[str, int] = field(default_factory=dict)
+    # neutron-star kinds: rows with finite inputs, and rows per ns_out_of_range label
+    ns_rows: dict[str, int] = field(default_factory=dict)
+    ns_labels: dict[str, dict[str, int]] = field(default_factory=dict)
 
     def merge(self, other: _RemnantTally) -> None:
         """Add another part's counts (parts are disjoint row ranges)."""
@@ -290,8 +301,13 @@ class _RemnantTally:
             (self.kinds, other.kinds),
             (self.status, other.status),
             (self.outside_by_fit, other.outside_by_fit),
+            (self.ns_rows, other.ns_rows),
         ):
             for k, v in theirs.items():
+                mine[k] = mine.get(k, 0) + v
+        for kind, labels in other.ns_labels.items():
+            mine = self.ns_labels.setdefault(kind, {})
+            for k, v in labels.items():
                 mine[k] = mine.get(k, 0) + v
 
     def add(self, res: pd.DataFrame) -> None:
@@ -313,6 +329,62 @@ class _RemnantTally:
             self.outside_by_fit[name] = self.outside_by_fit.get(name, 0) + int(
                 meta.get("n_outside_range", 0)
             )
+        if "ns_out_of_range" in res.columns:
+            self._add_ns_ranges(res)
+
+    def _add_ns_ranges(self, res: pd.DataFrame) -> None:
+        """Per neutron-star kind: rows the neutron-star fits saw with finite inputs, and rows
+        per ``ns_out_of_range`` label (what the in-memory warning of each kind counts)."""
+        from gwdeficit.fits.neutron_star import STATUS_BAD_INPUT
+
+        kind = res["kind"].astype(str)
+        finite = res["remnant_status"].astype(str) != STATUS_BAD_INPUT
+        for k in schema.KINDS:
+            if k == "BBH":
+                continue
+            is_k = (kind == k).to_numpy()
+            if not is_k.any():
+                continue
+            self.ns_rows[k] = self.ns_rows.get(k, 0) + int(finite.to_numpy()[is_k].sum())
+            labels = self.ns_labels.setdefault(k, {})
+            counts = res["ns_out_of_range"].astype(str)[is_k].value_counts(sort=False)
+            for label, v in counts.items():
+                if label:
+                    labels[str(label)] = labels.get(str(label), 0) + int(v)
+
+    def ns_outside(self) -> dict[str, dict[str, int]]:
+        """Per neutron-star kind, rows outside each neutron-star fit's range, in fit order.
+
+        A row's ``ns_out_of_range`` lists the fits in the neutron-star module's order; the
+        whole order is merged from the labels seen (names never seen together keep the order
+        of first appearance).
+        """
+        out: dict[str, dict[str, int]] = {}
+        for kind, labels in self.ns_labels.items():
+            seqs = [label.split(";") for label in labels]
+            names: list[str] = []
+            for seq in seqs:
+                for name in seq:
+                    if name not in names:
+                        names.append(name)
+            after = {n: set() for n in names}  # n -> names that come after n somewhere
+            for seq in seqs:
+                for i, a in enumerate(seq):
+                    after[a].update(seq[i + 1 :])
+            order: list[str] = []
+            todo = list(names)
+            while todo:  # first name (in appearance order) that no remaining name precedes
+                nxt = next(
+                    (n for n in todo if not any(n in after[m] for m in todo if m != n)), todo[0]
+                )
+                order.append(nxt)
+                todo.remove(nxt)
+            counts = dict.fromkeys(order, 0)
+            for label, v in labels.items():
+                for name in label.split(";"):
+                    counts[name] += v
+            out[kind] = counts
+        return out
 
 
 def _sorted_counts(d: Mapping[str, int]) -> dict[str, int]:
@@ -329,15 +401,21 @@ def stream_remnants(
     force: bool = False,
     progress: Progress | None = None,
     inputs: Mapping[str, str] | None = None,
+    ns_options: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
     """Remnants of a catalogue (Parquet file or folder) written batch by batch to ``out``.
 
     Same rows, columns, values and random angles as ``compute_remnants`` on the whole table
-    with ``seed`` (module docstring); metadata as the in-memory stage writes it, with the
-    provenance record naming the engine and batch size. One :class:`FitRangeWarning` sums up
-    the rows outside a fit's calibrated range. Returns the summary of
-    :func:`gwdeficit.remnant.summarize_remnants` (exact deficit quantiles) plus ``phi12_drawn``.
-    Raises what ``compute_remnants`` raises for bad rows (named by ``input_row``).
+    with ``seed`` (module docstring) and ``ns_options`` (the neutron-star keywords of
+    :func:`gwdeficit.remnant.compute_remnants`; None values are left out, as there);
+    metadata as the in-memory stage writes it (``gwdeficit.neutron_star`` too), with the
+    provenance record naming the engine and batch size. Range warnings as the
+    in-memory stage emits them, counted over the whole table: one per neutron-star kind that
+    has rows outside a neutron-star fit's range, then one for the black-hole fits. Returns the
+    summary of :func:`gwdeficit.remnant.summarize_remnants` (exact deficit quantiles) plus
+    ``phi12_drawn`` and, when the table holds neutron-star rows, ``neutron_star`` (the
+    ``gwdeficit.neutron_star`` metadata). Raises what ``compute_remnants`` raises for bad rows
+    (named by ``input_row``) and bad options.
     """
 
     from gwdeficit import workdir as wd
@@ -354,7 +432,16 @@ def stream_remnants(
     src = str(cat)
     if inputs is None:
         inputs = {src: wd.file_sha256(cat)}
-    job = RemnantJob(seed, n_total, tuple(chosen), meta_in, src, dict(inputs))
+    job = RemnantJob(
+        seed,
+        n_total,
+        tuple(chosen),
+        meta_in,
+        src,
+        dict(inputs),
+        ns_options=_ns_options(ns_options),
+        has_ns=has_neutron_stars(cat),
+    )
 
     def parts() -> Iterator[tuple[pa.Table, _RemnantTally, dict[str, Any]]]:
         offset = 0
@@ -365,9 +452,62 @@ def stream_remnants(
     return write_remnants(cat, out, job, parts(), batch_rows, force, progress, engine="stream")
 
 
+def _ns_options(ns_options: Mapping[str, Any] | None) -> dict[str, Any]:
+    """The neutron-star options as ``compute_remnants`` keeps them (None values left out)."""
+    return {k: v for k, v in dict(ns_options or {}).items() if v is not None}
+
+
+def has_neutron_stars(path: str | os.PathLike[str]) -> bool:
+    """True when a row of the Parquet file or folder has a ``kind`` other than ``BBH``.
+
+    Row groups whose statistics give min = max = "BBH" are skipped (a null there makes the
+    remnant stage fail on its batch anyway); others have their ``kind`` column read, one row
+    group at a time, until a non-BBH row is found. False without a ``kind`` column (the
+    remnant stage then reports the missing column).
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    import pyarrow.dataset as ds
+
+    try:
+        dataset = ds.dataset(Path(path), format="parquet")
+        if "kind" not in dataset.schema.names:
+            return False
+        for frag in dataset.get_fragments():
+            for rg in frag.row_groups:
+                stats = (rg.statistics or {}).get("kind") or {}
+                if stats.get("min") == "BBH" and stats.get("max") == "BBH":
+                    continue
+                col = frag.subset(row_group_ids=[rg.id]).to_table(columns=["kind"])["kind"]
+                try:
+                    bbh = pc.equal(col.cast(pa.string()), "BBH")
+                except (pa.ArrowInvalid, pa.ArrowNotImplementedError, pa.ArrowTypeError):
+                    return True  # not text: the remnant stage names the bad rows
+                if not pc.all(pc.fill_null(bbh, False)).as_py():
+                    return True
+    except (pa.ArrowInvalid, OSError, ValueError) as exc:
+        raise InputFileError(f"{path}: cannot read Parquet data ({exc})") from exc
+    return False
+
+
+#: Values of the neutron-star columns on black-hole rows (as ``compute_remnants`` fills them).
+_NS_COLUMN_FILL: dict[str, Any] = {
+    "ns_disrupted": False,
+    "ns_erad_lower_bound": False,
+    "ns_erad_method": "",
+    "ns_tidal_source": "",
+    "ns_out_of_range": "",
+}
+
+
 @dataclass(frozen=True)
 class RemnantJob:
-    """The remnant stage on one batch or partition (picklable: engines ship it to workers)."""
+    """The remnant stage on one batch or partition (picklable: engines ship it to workers).
+
+    ``ns_options``: the neutron-star keywords of ``compute_remnants``; ``has_ns``: whether any
+    row of the whole table is a neutron-star kind (then every batch gets the neutron-star
+    columns, filled as the in-memory path fills black-hole rows where a batch has none).
+    """
 
     seed: int
     n_total: int
@@ -375,6 +515,8 @@ class RemnantJob:
     meta_in: dict[str, Any]
     source: str
     inputs: dict[str, str]
+    ns_options: dict[str, Any] = field(default_factory=dict)
+    has_ns: bool = False
 
     def run(self, table: pa.Table, offset: int) -> tuple[pa.Table, _RemnantTally, dict[str, Any]]:
         """Rows ``offset ..`` of the catalogue -> (remnant rows, their tally, their metadata)."""
@@ -393,7 +535,20 @@ class RemnantJob:
                 fits=list(self.fits),
                 source=self.source,
                 inputs=self.inputs,
+                ns_options=self.ns_options,
             )
+        from gwdeficit.remnant import NS_EXTRA_COLUMNS
+
+        present = [c for c in NS_EXTRA_COLUMNS if c in res.columns]
+        if present and not self.has_ns:
+            raise RuntimeError("a batch holds neutron-star rows that the pre-pass did not see")
+        if self.has_ns and not present:
+            unknown = [c for c in NS_EXTRA_COLUMNS if c not in _NS_COLUMN_FILL]
+            if unknown:
+                raise RuntimeError(f"no black-hole value known for column(s) {unknown}")
+            attrs = dict(res.attrs)
+            res = res.assign(**{c: _NS_COLUMN_FILL[c] for c in NS_EXTRA_COLUMNS})
+            res.attrs = attrs
         tally = _RemnantTally()
         tally.add(res)
         new = [c for c in res.columns if c not in df.columns]
@@ -421,6 +576,7 @@ def write_remnants(
 
     tally = _RemnantTally()
     last_attrs: dict[str, Any] = {}
+    ns_meta: dict[str, Any] | None = None
     out = Path(out)
     with wd.atomic_path(out, force=force, inputs=(cat,)) as tmp:
         writer = None
@@ -428,6 +584,7 @@ def write_remnants(
             for result, part, attrs in parts:
                 tally.merge(part)
                 last_attrs = attrs
+                ns_meta = _merge_ns_meta(ns_meta, attrs.get(schema.META_NEUTRON_STAR))
                 if writer is None:
                     labels = [c for c in _LABEL_COLUMNS if c in result.column_names]
                     writer = pq.ParquetWriter(
@@ -452,7 +609,16 @@ def write_remnants(
                 )
                 writer.write_table(result)
             attrs = _remnant_metadata(
-                last_attrs, job.meta_in, tally, job.seed, job.fits, job.inputs, batch_rows, engine
+                last_attrs,
+                job.meta_in,
+                tally,
+                job.seed,
+                job.fits,
+                job.inputs,
+                batch_rows,
+                engine,
+                ns_meta=ns_meta,
+                ns_options=job.ns_options,
             )
             writer.add_key_value_metadata(_encoded(attrs))
         finally:
@@ -460,8 +626,53 @@ def write_remnants(
                 writer.close()
         quantiles = _deficit_quantiles(tmp, batch_rows, tally.estimated, STATUS_ESTIMATED)
 
+    _warn_ns_outside(tally)
     _warn_outside(tally.outside, tally.estimated, tally.outside_by_fit, stacklevel=3)
-    return _remnant_summary(tally, quantiles, job.fits)
+    summary = _remnant_summary(tally, quantiles, job.fits)
+    if ns_meta is not None:
+        summary["neutron_star"] = ns_meta
+    return summary
+
+
+def _merge_ns_meta(
+    merged: dict[str, Any] | None, part: Mapping[str, Any] | None
+) -> dict[str, Any] | None:
+    """The ``gwdeficit.neutron_star`` metadata of the parts seen so far.
+
+    It holds the options, the fits and the note, no counts: the parts that have it (those with
+    neutron-star rows) must agree, and any difference is a bug, not something to merge.
+    """
+    if part is None:
+        return merged
+    if merged is None:
+        return dict(part)
+    if dict(part) != merged:
+        keys = sorted(k for k in set(part) | set(merged) if part.get(k) != merged.get(k))
+        raise RuntimeError(f"batches disagree on the neutron-star metadata ({', '.join(keys)})")
+    return merged
+
+
+def _warn_ns_outside(t: _RemnantTally) -> None:
+    """The neutron-star fits' range warnings of the in-memory stage, counted over all batches.
+
+    One :class:`FitRangeWarning` per neutron-star kind with rows outside a fit's range, in the
+    words of ``gwdeficit.fits.neutron_star`` (which warns once per kind in memory).
+    """
+    from gwdeficit.fits.registry import FitRangeWarning
+
+    outside = t.ns_outside()
+    for kind in schema.KINDS:
+        counts = {name: n for name, n in outside.get(kind, {}).items() if n}
+        if not counts:
+            continue
+        parts = ", ".join(f"{name} ({n} rows)" for name, n in counts.items())
+        warnings.warn(
+            f"neutron-star rows outside the calibrated range of: {parts}, of "
+            f"{t.ns_rows.get(kind, 0)} rows; the fits are extrapolated there (in_fit_range is "
+            "False for them)",
+            FitRangeWarning,
+            stacklevel=3,
+        )
 
 
 def _encoded(meta: Mapping[str, Any]) -> dict[bytes, bytes]:
@@ -482,11 +693,17 @@ def _remnant_metadata(
     inputs: Mapping[str, str],
     batch_rows: int,
     engine: str = "stream",
+    ns_meta: Mapping[str, Any] | None = None,
+    ns_options: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
-    """The whole table's metadata from the last batch's: counts summed, one provenance record."""
+    """The whole table's metadata from the last batch's: counts summed, one provenance record,
+    the neutron-star metadata of the batches that hold neutron stars (``ns_meta``)."""
     from gwdeficit import workdir as wd
 
     out = dict(attrs)
+    out.pop(schema.META_NEUTRON_STAR, None)
+    if ns_meta is not None:
+        out[schema.META_NEUTRON_STAR] = dict(ns_meta)
     fits_meta = []
     for m in attrs.get(schema.META_FITS, []):
         m = dict(m)
@@ -507,6 +724,7 @@ def _remnant_metadata(
         rows=t.rows,
         rows_estimated=t.estimated,
         phi12_drawn=t.phi12_drawn,
+        ns_options=dict(ns_options or {}),
         engine=engine,
         batch_rows=batch_rows,
     )
@@ -1676,10 +1894,12 @@ def remnant_stage(
     force: bool = False,
     show_progress: bool = False,
     inputs: Mapping[str, str] | None = None,
+    ns_options: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
     """The remnant stage batch by batch on ``engine`` ("local" or "dask"), with a progress bar.
 
-    Returns the summary of :func:`stream_remnants`.
+    ``ns_options``: the neutron-star keywords of ``compute_remnants``. Returns the summary of
+    :func:`stream_remnants`.
     """
     total = parquet_rows(catalogue)
     with row_progress("remnants", total, show_progress) as advance:
@@ -1696,6 +1916,7 @@ def remnant_stage(
                     force=force,
                     progress=advance,
                     inputs=None if inputs is None else dict(inputs),
+                    ns_options=ns_options,
                 )
         return stream_remnants(
             catalogue,
@@ -1705,6 +1926,7 @@ def remnant_stage(
             force=force,
             progress=advance,
             inputs=inputs,
+            ns_options=ns_options,
         )
 
 

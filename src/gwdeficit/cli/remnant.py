@@ -136,16 +136,10 @@ def remnant(
     }
     ns_options = {k: v for k, v in ns_options.items() if v is not None}
     if engine_name == "dask" or parquet_rows(path) > batch_rows:
-        if ns_options:
-            from gwdeficit.schema import OptionError
-
-            raise OptionError(
-                "neutron-star options (--ns-radius, --eos-relation, --baryonic-relation, "
-                "--mtov, --r16) are not yet passed to the out-of-core engine; run inputs "
-                "holding neutron stars in memory (raise --batch-rows above the row count)"
-            )
         # Larger than one batch (or on a cluster): streamed, same results (gwdeficit.stream).
-        _streamed(path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0)
+        _streamed(
+            path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0, ns_options
+        )
         return
     df = wd.read_parquet(path)
     digest = wd.file_sha256(path)
@@ -188,7 +182,11 @@ def remnant(
     for w in caught:
         if issubclass(w.category, FitRangeWarning):
             _common.err(f"warning: {w.message}")
-    ns_meta = result.attrs.get("gwdeficit.neutron_star")
+    _print_summary(summary, result.attrs.get("gwdeficit.neutron_star"), as_json)
+
+
+def _print_summary(summary: dict[str, Any], ns_meta: dict[str, Any] | None, as_json: bool) -> None:
+    """The neutron-star note (standard error, and in the JSON summary), then the summary."""
     if ns_meta:
         summary["neutron_star"] = ns_meta
         _common.err(f"note: {ns_meta['note']}")
@@ -208,6 +206,7 @@ def _streamed(
     force: bool,
     as_json: bool,
     t0: float,
+    ns_options: dict[str, Any],
 ) -> None:
     """The remnant stage batch by batch (local or Dask engine), then the same summary."""
     import warnings
@@ -226,12 +225,11 @@ def _streamed(
             batch_rows=batch_rows,
             force=force,
             show_progress=_common.show_progress(as_json),
+            ns_options=ns_options,
         )
+    ns_meta = summary.pop("neutron_star", None)
     summary.update(input=str(path), output=str(out), seed=seed, seconds=time.perf_counter() - t0)
     for w in caught:
         if issubclass(w.category, FitRangeWarning):
             _common.err(f"warning: {w.message}")
-    if as_json:
-        _common.print_json(summary)
-    else:
-        typer.echo(format_summary(summary))
+    _print_summary(summary, ns_meta, as_json)
