@@ -12,11 +12,12 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from gwdeficit.fits.isco import _w_newton, ufunc_like
-from gwdeficit.fits.spin import _bkl_w, _nu, spin_components
+from gwdeficit.fits.spin import _bkl_w, _hlz14_core, _hlz14_inputs, _nu, spin_components
 
 __all__ = [
     "BMR12_COEFFICIENTS",
     "barausse_morozova_rezzolla_2012",
+    "healy_lousto_zlochower_2014",
     "isco_binding_energy",
 ]
 
@@ -104,3 +105,34 @@ def isco_binding_energy(
     opq = 1.0 + q
     s_par = (chi1z + q * q * chi2z) / (opq * opq)
     return _isco_binding_from_w(nu, _bkl_w(nu, s_par))
+
+
+@ufunc_like
+def healy_lousto_zlochower_2014(
+    q: ArrayLike,
+    chi1: ArrayLike,
+    chi2: ArrayLike,
+    tilt1: ArrayLike = 0.0,
+    tilt2: ArrayLike = 0.0,
+) -> NDArray[np.float64]:
+    """Radiated-energy fraction E_rad / M from the aligned-spin fit of Healy, Lousto & Zlochower.
+
+    Healy, Lousto & Zlochower 2014, PRD 90, 104004, their remnant-mass formula (eq. 13;
+    equation number from memory), in their notation (see fits.spin.healy_lousto_zlochower_2014
+    for eta, dm, S and Delta):
+        M_rem / M = (4 eta)^2 [M0 + K1 S + K2a Delta dm + K2b S^2 + K2c Delta^2 + K2d dm^2
+                    + K3a Delta S dm + K3b S Delta^2 + K3c S^3 + K3d S dm^2
+                    + K4a Delta S^2 dm + K4b Delta^3 dm + K4c Delta^4 + K4d S^4
+                    + K4e Delta^2 S^2 + K4f dm^4 + K4g Delta dm^3 + K4h Delta^2 dm^2
+                    + K4i S^2 dm^2] + [1 + eta (E_isco + 11)] dm^6,
+    E_isco the specific energy at the ISCO of the final hole (Bardeen, Press & Teukolsky
+    1972, at the HLZ14 final spin), coefficients in fits.spin.HLZ14_MASS_COEFFICIENTS;
+    E_rad / M = 1 - M_rem / M. The dm^6 term gives the test-particle limit
+    M_rem = M - mu (1 - E_isco) exactly. M0 = 0.951507 is the equal-mass non-spinning value.
+
+    Calibrated range (approximate, from memory): aligned-spin NR simulations with
+    1/6 <~ q <= 1 and spins up to ~0.8-0.85 (the registry uses q >= 1/4, chi <= 0.8).
+    In-plane spin components do not enter.
+    """
+    q, nu, chi1z, chi2z, s_par, _ = _hlz14_inputs(q, chi1, chi2, tilt1, tilt2, 0.0)
+    return _hlz14_core(q, nu, chi1z, chi2z, s_par)[1]

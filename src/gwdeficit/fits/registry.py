@@ -88,6 +88,11 @@ class Components:
         return spin._bkl_w(self.nu, self.s_par)
 
     @cached_property
+    def hlz14(self) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """Signed final spin and E_rad / M of Healy, Lousto & Zlochower 2014 (both fits)."""
+        return spin._hlz14_core(self.q, self.nu, self.chi1z, self.chi2z, self.s_par)
+
+    @cached_property
     def kick_units(self) -> tuple[NDArray[np.float64], ...]:
         """Factors shared by the recoil fits (fits.kick._kick_units)."""
         return kick._kick_units(self.q, self.nu, self.chi1z, self.chi2z, self.dperp, self.cos_phase)
@@ -242,6 +247,16 @@ REGISTRY: tuple[Fit, ...] = (
         function=spin.rezzolla_2008,
     ),
     Fit(
+        name="healy_lousto_zlochower_spin_2014",
+        quantity="final_spin",
+        citation="Healy, Lousto & Zlochower 2014, PRD 90, 104004",
+        summary="aligned-spin final spin with spin-difference terms; in-plane spin in quadrature",
+        calibrated=_NR_DOMAIN,
+        in_default=True,
+        kernel=lambda c: spin._bkl_magnitude(c.hlz14[0], c.perp_sq),
+        function=spin.healy_lousto_zlochower_2014,
+    ),
+    Fit(
         name="buonanno_kidder_lehner_2008",
         quantity="final_spin",
         citation="Buonanno, Kidder & Lehner 2008, PRD 77, 026004",
@@ -260,6 +275,16 @@ REGISTRY: tuple[Fit, ...] = (
         in_default=True,
         kernel=lambda c: mass._bmr12_kernel(c.nu, c.s_par),
         function=mass.barausse_morozova_rezzolla_2012,
+    ),
+    Fit(
+        name="healy_lousto_zlochower_mass_2014",
+        quantity="final_mass",
+        citation="Healy, Lousto & Zlochower 2014, PRD 90, 104004",
+        summary="aligned-spin remnant mass with spin-difference terms and ISCO test-body limit",
+        calibrated=_NR_DOMAIN,
+        in_default=True,
+        kernel=lambda c: c.hlz14[1],
+        function=mass.healy_lousto_zlochower_2014,
     ),
     Fit(
         name="bardeen_press_teukolsky_1972",
