@@ -32,6 +32,7 @@ from gwdeficit.fits.registry import REGISTRY
 from gwdeficit.remnant import remnant_arrays
 
 S3 = math.sqrt(3.0)
+L_W0 = 2 / (3 * S3)
 
 
 def _e_isco(a: float) -> float:
@@ -39,6 +40,25 @@ def _e_isco(a: float) -> float:
     z2 = math.sqrt(3 * a * a + z1 * z1)
     r = 3 + z2 - math.copysign(math.sqrt(max((3 - z1) * (3 + z1 + 2 * z2), 0.0)), a)
     return math.sqrt(1 - 2 / (3 * r))
+
+
+def _bkl_w(nu, s):
+    w = min(max(1 + math.copysign(abs(13.5 * (1 - s)) ** (1 / 3), 1 - s), 1.0), 5.0)
+    for _ in range(5):
+        u = math.sqrt((w * w + 2) / 3)
+        f = u * (4 - w) / 3 - L_W0 * nu * (1 + 2 * w) - s
+        df = -2 * (w - 1) ** 2 / (9 * u) - 2 * L_W0 * nu
+        w = min(max(w - f / min(df, -1e-300), 1.0), 5.0)
+    return w
+
+
+def _hlz_poly(c, s, d, dm):
+    return (c["0"] + c["1"] * s + c["2a"] * d * dm + c["2b"] * s * s + c["2c"] * d * d
+            + c["2d"] * dm * dm + c["3a"] * d * s * dm + c["3b"] * s * d * d + c["3c"] * s**3
+            + c["3d"] * s * dm * dm + c["4a"] * d * s * s * dm + c["4b"] * d**3 * dm
+            + c["4c"] * d**4 + c["4d"] * s**4 + c["4e"] * d * d * s * s + c["4f"] * dm**4
+            + c["4g"] * d * dm**3 + c["4h"] * d * d * dm * dm
+            + c["4i"] * s * s * dm * dm)  # fmt: skip
 
 
 def _kick(nu, q, sz_par, a1z, a2z, dperp, cph, c, hang):
@@ -70,6 +90,15 @@ def row_math(q, c1, c2, t1, t2, p12, ph):
                      + nu * (r["t2"] + r["t3"] * nu))  # fmt: skip
     r08 = min(math.sqrt(par * par + inpl / (1 + q) ** 4), 1.0)
     s_par = sz / (1 + q) ** 2
+    dm, dd = (q - 1) / (1 + q), (a1z - q * a2z) / (1 + q)
+    aa = 16 * nu * nu * _hlz_poly(spin.HLZ14_SPIN_COEFFICIENTS, s_par, dd, dm)
+    aa += s_par * (1 + 8 * nu) * dm**4
+    bb = nu * dm**6
+    w = _bkl_w(bb, aa)
+    alpha = aa + bb * L_W0 * (1 + 2 * w)
+    hlz_spin = min(math.sqrt(alpha * alpha + inpl / (1 + q) ** 4), 1.0)
+    mf = 16 * nu * nu * _hlz_poly(spin.HLZ14_MASS_COEFFICIENTS, s_par, dd, dm)
+    hlz_erad = 1 - mf - (1 + nu * (w / math.sqrt(w * w + 2) + 11)) * dm**6
     e = _e_isco(s_par)
     p0, p1 = mass.BMR12_COEFFICIENTS["p0"], mass.BMR12_COEFFICIENTS["p1"]
     erad = (1 - e) * nu + 4 * nu * nu * (4 * p0 + 16 * p1 * s_par * (s_par + 1) + e - 1)
@@ -81,7 +110,7 @@ def row_math(q, c1, c2, t1, t2, p12, ph):
     v1 = _kick(nu, q, sz, a1z, a2z, dperp, cph, lc, hang)
     cc = kick.CAMPANELLI07_COEFFICIENTS
     v2 = _kick(nu, q, sz, a1z, a2z, dperp, cph, cc, cc["K_kms"])
-    return 0.5 * (br09 + r08), erad, 0.5 * (v1 + v2)
+    return (br09 + r08 + hlz_spin) / 3, 0.5 * (erad + hlz_erad), 0.5 * (v1 + v2)
 
 
 def best_of(k: int, fn) -> tuple[float, float]:

@@ -41,7 +41,6 @@ from gwdeficit.fits.registry import (
     QUANTITY_COLUMNS,
     Fit,
     FitRangeWarning,
-    components,
     select_fits,
 )
 from gwdeficit.schema import (
@@ -142,22 +141,23 @@ def _output_names(fits: Sequence[Fit]) -> list[str]:
     return names
 
 
-def _cos_sin32(x: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """cos and sin of angles in single precision (errors <= 3e-7), returned as float64.
+def _cos_sin32(x: NDArray[np.float64]) -> tuple[NDArray[np.float32], NDArray[np.float32]]:
+    """cos and sin of angles in single precision (errors <= 3e-7).
 
     numpy's float32 cosine and sine are vectorised (SIMD), its float64 ones are not: on the
     project machine about 2 ns against 43 ns per value. The spin components built from these
     carry absolute errors <= 3e-7 (relative ~1e-7 for the in-plane parts of nearly aligned
     spins, since the sine is computed directly), far below the accuracy of any fit (>= 1e-3).
-    The public per-fit functions in gwdeficit.fits use float64 cos and sin.
+    The compiled kernel widens them to float64; the public per-fit functions in
+    gwdeficit.fits use float64 cos and sin.
     """
     x32 = x.astype(np.float32)
-    return np.cos(x32).astype(np.float64), np.sin(x32).astype(np.float64)
+    return np.cos(x32), np.sin(x32)
 
 
-def _cos32(x: NDArray[np.float64]) -> NDArray[np.float64]:
-    """cos of angles in single precision, as float64 (see :func:`_cos_sin32`)."""
-    return np.cos(x.astype(np.float32)).astype(np.float64)
+def _cos32(x: NDArray[np.float64]) -> NDArray[np.float32]:
+    """cos of angles in single precision (see :func:`_cos_sin32`)."""
+    return np.cos(x.astype(np.float32))
 
 
 @dataclass(frozen=True, eq=False)
@@ -172,23 +172,10 @@ class _BbhInput:
 
 
 def _block_is_valid(m1, m2, c1, c2, t1, t2, p) -> bool:
-    """Cheap all-rows check (reductions; NaN fails every comparison)."""
-    lo, hi = -TILT_TOLERANCE, np.pi + TILT_TOLERANCE
-    return bool(
-        np.min(m1) > 0
-        and np.min(m2) > 0
-        and np.max(m1) < np.inf
-        and np.max(m2) < np.inf
-        and np.min(c1) >= 0
-        and np.min(c2) >= 0
-        and np.max(c1) <= 1
-        and np.max(c2) <= 1
-        and np.min(t1) >= lo
-        and np.min(t2) >= lo
-        and np.max(t1) <= hi
-        and np.max(t2) <= hi
-        and not np.isinf(p).any()
-    )
+    """Cheap all-rows check (one compiled pass; NaN fails every comparison but phi12's)."""
+    from gwdeficit.fits._kernels import all_valid
+
+    return bool(all_valid(m1, m2, c1, c2, t1, t2, p, -TILT_TOLERANCE, np.pi + TILT_TOLERANCE))
 
 
 def _bbh_core(
@@ -199,48 +186,32 @@ def _bbh_core(
 ) -> tuple[dict[str, NDArray[Any]], dict[str, int], int]:
     """Validate and evaluate ``fits`` block by block on binary-black-hole rows.
 
-    Returns the output columns, per fit the number of rows outside its calibrated range, and
-    the number of rows whose missing phi12 was replaced by a draw where it matters (both
-    spins with an in-plane component).
+    The formulas run as compiled loops over each block (:mod:`gwdeficit.fits._kernels`)
+    writing straight into the output columns; numpy computes the single-precision cosines and
+    sines of the block's angles (vectorised) beforehand. Returns the output columns, per fit
+    the number of rows outside its calibrated range, and the number of rows whose missing
+    phi12 was replaced by a draw where it matters (both spins with an in-plane component).
     """
+    from gwdeficit.fits import _kernels as kn
+
     _raise_malloc_threshold()
     v = inp.values
     m1, m2, chi1, chi2 = v["m1_msun"], v["m2_msun"], v["chi1"], v["chi2"]
     tilt1, tilt2, phi12 = v["tilt1_rad"], v["tilt2_rad"], v["phi12_rad"]
     n = m1.shape[0]
-    by_q = {qty: [f for f in fits if f.quantity == qty] for qty in QUANTITIES}
-    n_default = {qty: sum(f.in_default for f in by_q[qty]) for qty in QUANTITIES}
-    # Fresh memory is costly (page faults), so identical columns share one read-only array:
-    # with a single NR fit the default is that fit's column and its spread is zero; for binary
-    # black holes deficit = erad, and mf's spread is erad's.
-    zeros = np.zeros(n)
-    cols: dict[str, NDArray[Any]] = {}
-    for f in fits:
-        for c in f.columns:
-            cols[c] = np.empty(n)
-    for qty in QUANTITIES:
-        name = _DEFAULT_COLUMN[qty]
-        if n_default[qty] == 1:
-            only = next(f for f in by_q[qty] if f.in_default)
-            cols[name] = cols[only.columns[-1]]
-            cols[f"{name}_range"] = cols[f"{name}_std"] = zeros
-            if qty == "final_mass":
-                cols["mf_msun"] = cols[only.columns[0]]
-        else:
-            for c in (name, f"{name}_range", f"{name}_std"):
-                cols[c] = np.empty(n)
-            if qty == "final_mass":
-                cols["mf_msun"] = np.empty(n)
-    cols["mf_msun_range"] = cols["erad_msun_range"]
-    cols["mf_msun_std"] = cols["erad_msun_std"]
-    cols["deficit_msun"] = cols["erad_msun"]
-    cols["ejected_msun"] = zeros
-    cols["erad_frac"] = np.empty(n)
-    cols["in_fit_range"] = np.empty(n, dtype=bool)
-    outside = {f.name: 0 for f in fits}
+    plan = _kernel_plan(fits)
+    out = np.empty((len(plan.names), n))
+    row = {name: j for j, name in enumerate(plan.names)}
+    ok = np.empty(n, dtype=bool)
+    outside_by_slot = np.zeros(kn.N_SLOTS, dtype=np.int64)
+    b = min(block_rows, max(n, 1))
+    work = np.empty((kn.N_WORK, b))
+    frac = np.empty((kn.N_SLOTS, b))  # E_rad / M of the mass fits, and unused slots
+    range_scratch = np.empty(b, dtype=bool)
     n_phi_drawn = 0
     for start in range(0, n, block_rows):
         sl = slice(start, min(start + block_rows, n))
+        k = sl.stop - sl.start
         a1, a2, c1, c2 = m1[sl], m2[sl], chi1[sl], chi2[sl]
         t1, t2, p = tilt1[sl], tilt2[sl], phi12[sl]
         if not _block_is_valid(a1, a2, c1, c2, t1, t2, p):
@@ -249,13 +220,6 @@ def _bbh_core(
         any_missing = inp.phi12_draws is not None and bool(missing.any())
         if any_missing:
             p = np.where(missing, inp.phi12_draws[sl], p)
-        swap = a2 > a1
-        if swap.any():  # body 1 the heavier, with its spin; phi12 keeps its cosine
-            a1, a2 = np.where(swap, a2, a1), np.where(swap, a1, a2)
-            c1, c2 = np.where(swap, c2, c1), np.where(swap, c1, c2)
-            t1, t2 = np.where(swap, t2, t1), np.where(swap, t1, t2)
-        mtot = a1 + a2
-        q = a2 / a1
         ct1, st1 = _cos_sin32(t1)
         ct2, st2 = _cos_sin32(t2)
         # tilts lie in [0, pi]; float32(pi) > pi makes its sine -9e-8: clip to the exact 0
@@ -264,39 +228,97 @@ def _bbh_core(
         if any_missing:
             inplane = (c1 * st1 > 1e-12) & (c2 * st2 > 1e-12)
             n_phi_drawn += int(np.count_nonzero(missing & inplane))
-        comp = components(q, c1, c2, ct1, st1, ct2, st2, _cos32(p), _cos32(inp.phase[sl]))
-        ok = cols["in_fit_range"][sl]
-        ok[:] = True
-        inside_by_range: dict[tuple, NDArray[np.bool_]] = {}
-        for qty in QUANTITIES:
-            default_vals = []
-            for f in by_q[qty]:
-                val = f.kernel(comp)
-                if qty == "final_mass":
-                    erad = np.multiply(mtot, val, out=cols[f.columns[1]][sl])
-                    np.subtract(mtot, erad, out=cols[f.columns[0]][sl])
-                    val = erad
-                else:
-                    cols[f.columns[0]][sl] = val
-                if f.calibrated:
-                    inside = inside_by_range.get(f.calibrated)
-                    if inside is None:
-                        inside = inside_by_range[f.calibrated] = f.in_range(q, c1, c2)
-                        ok &= inside
-                    outside[f.name] += int(inside.size - np.count_nonzero(inside))
-                if f.in_default:
-                    default_vals.append(val)
-            if n_default[qty] > 1:
-                _mean_and_spread(cols, _DEFAULT_COLUMN[qty], default_vals, sl)
-        erad = cols["erad_msun"][sl]
-        if n_default["final_mass"] > 1:
-            np.subtract(mtot, erad, out=cols["mf_msun"][sl])
-        np.divide(erad, mtot, out=cols["erad_frac"][sl])
+        w = work[:, :k]
+        raw = [out[j, sl] if j >= 0 else frac[slot, :k] for slot, j in enumerate(plan.raw_rows)]
+        kn.raw_block(
+            plan.enabled, a1, a2, c1, c2, ct1, st1, ct2, st2, _cos32(p), _cos32(inp.phase[sl]),
+            raw, w,
+        )  # fmt: skip
+        mtot = w[kn.W_MTOT]
+        for f in fits:
+            if f.quantity == "final_mass":
+                mf_col, erad_col = f.columns
+                kn.mass_columns(mtot, raw[f.slot], out[row[mf_col], sl], out[row[erad_col], sl])
+        for lo, hi, stat in plan.stats:
+            kn.mean_spread(out[lo:hi, sl], out[stat, sl], out[stat + 1, sl], out[stat + 2, sl])
+        erad = out[row["erad_msun"], sl]
+        np.subtract(mtot, erad, out=out[row["mf_msun"], sl])
+        np.divide(erad, mtot, out=out[row["erad_frac"], sl])
+        okb = ok[sl]
+        for j, (q_lo, chi_hi, slots) in enumerate(plan.ranges):
+            inside = okb if j == 0 else range_scratch[:k]
+            kn.in_range(w[kn.W_Q], w[kn.W_X1], w[kn.W_X2], q_lo, chi_hi, inside)
+            n_out = k - int(np.count_nonzero(inside))
+            for slot in slots:
+                outside_by_slot[slot] += n_out
+            if j:
+                okb &= inside
+        if not plan.ranges:
+            okb[:] = True
         if progress is not None:
-            progress(sl.stop - sl.start)
+            progress(k)
+    cols: dict[str, NDArray[Any]] = dict(zip(plan.names, out, strict=True))
+    cols["mf_msun_range"] = cols["erad_msun_range"]
+    cols["mf_msun_std"] = cols["erad_msun_std"]
+    cols["deficit_msun"] = cols["erad_msun"]
+    cols["in_fit_range"] = ok
     for arr in cols.values():
         arr.flags.writeable = False
+    # zero for every binary black hole: one read-only value seen n times, no memory
+    cols["ejected_msun"] = np.broadcast_to(np.float64(0.0), (n,))
+    outside = {f.name: int(outside_by_slot[f.slot]) for f in fits}
     return cols, outside, n_phi_drawn
+
+
+@dataclass(frozen=True, eq=False)
+class _KernelPlan:
+    """Output rows of :func:`_bbh_core` and the per-slot settings of the compiled kernels.
+
+    ``names``: output columns in row order; per quantity the NR-calibrated fits' values
+    (erad for final mass) sit in adjacent rows ``lo:hi`` followed by the rows of mean, range
+    and std (``stats``: (lo, hi, first stat row)). ``raw_rows[slot]``: the output row a
+    spin/recoil slot's value goes to (-1: a mass fit or not selected; those go to scratch).
+    ``ranges``: the distinct calibrated ranges (q_min, chi_max) with the slots that have each.
+    """
+
+    names: tuple[str, ...]
+    enabled: NDArray[np.bool_]
+    raw_rows: tuple[int, ...]
+    stats: tuple[tuple[int, int, int], ...]
+    ranges: tuple[tuple[float, float, tuple[int, ...]], ...]
+
+
+def _kernel_plan(fits: Sequence[Fit]) -> _KernelPlan:
+    """Output layout and per-slot settings for the selected fits."""
+    from gwdeficit.fits._kernels import N_SLOTS
+
+    names: list[str] = []
+    enabled = np.zeros(N_SLOTS, dtype=bool)
+    raw_rows = [-1] * N_SLOTS
+    stats = []
+    by_range: dict[tuple[float, float], list[int]] = {}
+    for f in fits:
+        enabled[f.slot] = True
+        rng = f.calibrated_range
+        if rng:
+            key = (rng.get("q_min", -np.inf), rng.get("chi_max", np.inf))
+            by_range.setdefault(key, []).append(f.slot)
+    for qty in QUANTITIES:
+        ordered = sorted((f for f in fits if f.quantity == qty), key=lambda f: not f.in_default)
+        lo = len(names)
+        for f in ordered:  # value columns (erad for mass), NR-calibrated fits first
+            if qty != "final_mass":
+                raw_rows[f.slot] = len(names)
+            names.append(f.columns[-1])
+        hi = lo + sum(f.in_default for f in ordered)
+        base = _DEFAULT_COLUMN[qty]
+        stats.append((lo, hi, len(names)))
+        names.extend((base, f"{base}_range", f"{base}_std"))
+        if qty == "final_mass":
+            names.extend(f.columns[0] for f in ordered)
+    names.extend(("mf_msun", "erad_frac"))
+    ranges = tuple((lo, hi, tuple(slots)) for (lo, hi), slots in by_range.items())
+    return _KernelPlan(tuple(names), enabled, tuple(raw_rows), tuple(stats), ranges)
 
 
 _MALLOC_WARMED = False
@@ -316,41 +338,6 @@ def _raise_malloc_threshold() -> None:
         buf = np.empty(1 << 21)
         del buf
         _MALLOC_WARMED = True
-
-
-def _mean_and_spread(
-    cols: dict[str, NDArray[Any]], name: str, vals: list[NDArray[np.float64]], sl: slice
-) -> None:
-    """Write mean, max - min and population std (ddof 0) of ``vals`` into cols[name*][sl]."""
-    mean, rng_, std = cols[name][sl], cols[f"{name}_range"][sl], cols[f"{name}_std"][sl]
-    k = len(vals)
-    if k == 1:
-        mean[:] = vals[0]
-        rng_[:] = 0.0
-        std[:] = 0.0
-        return
-    if k == 2:
-        np.add(vals[0], vals[1], out=mean)
-        mean *= 0.5
-        np.subtract(vals[0], vals[1], out=rng_)
-        np.abs(rng_, out=rng_)
-        np.multiply(rng_, 0.5, out=std)
-        return
-    lo, hi = vals[0].copy(), vals[0].copy()
-    mean[:] = vals[0]
-    for x in vals[1:]:
-        mean += x
-        np.minimum(lo, x, out=lo)
-        np.maximum(hi, x, out=hi)
-    mean /= k
-    var = np.zeros_like(lo)
-    for x in vals:
-        d = x - mean
-        d *= d
-        var += d
-    var /= k
-    np.subtract(hi, lo, out=rng_)
-    np.sqrt(var, out=std)
 
 
 def _validate_bbh(

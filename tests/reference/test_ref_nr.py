@@ -310,22 +310,40 @@ def test_hlz14_equal_mass_equal_spin_reduces_to_the_spin_polynomial():
     np.testing.assert_allclose(got, expect, rtol=0, atol=1e-14)
 
 
-def test_hlz14_final_spin_solves_its_isco_equation():
-    # alpha = A + eta dm^6 J_isco(alpha), J_isco from the closed form of Bardeen, Press &
-    # Teukolsky 1972 (fits.isco): the Newton solve in w must satisfy it to rounding level
+def _hlz14_poly(c, s, d, dm):
+    """The HLZ14 polynomial written out here independently of the package (its eqs. 13-14)."""
+    return (c["0"] + c["1"] * s + c["2a"] * d * dm + c["2b"] * s**2 + c["2c"] * d**2
+            + c["2d"] * dm**2 + c["3a"] * d * s * dm + c["3b"] * s * d**2 + c["3c"] * s**3
+            + c["3d"] * s * dm**2 + c["4a"] * d * s**2 * dm + c["4b"] * d**3 * dm + c["4c"] * d**4
+            + c["4d"] * s**4 + c["4e"] * d**2 * s**2 + c["4f"] * dm**4 + c["4g"] * d * dm**3
+            + c["4h"] * d**2 * dm**2 + c["4i"] * s**2 * dm**2)  # fmt: skip
+
+
+def test_hlz14_final_spin_solves_its_isco_equation_and_gives_its_mass():
+    # alpha = A + eta dm^6 J_isco(alpha) and M_rem/M = (4 eta)^2 P_K + (1 + eta (E_isco(alpha)
+    # + 11)) dm^6 (Healy, Lousto & Zlochower 2014, PRD 90, 104004, from memory), with J_isco,
+    # E_isco from the closed forms of Bardeen, Press & Teukolsky 1972 (fits.isco): the
+    # package's Newton solve must satisfy both to rounding level. Aligned spins, so the
+    # public final spin is alpha itself (positive here).
     rng = np.random.default_rng(5)
     n = 2000
     q = 10 ** rng.uniform(-3, 0, n)
-    chi1z, chi2z = rng.uniform(-0.99, 0.99, n), rng.uniform(-0.99, 0.99, n)
-    nu = q / (1 + q) ** 2
-    s_par = (chi1z + q * q * chi2z) / (1 + q) ** 2
-    alpha, _ = spin._hlz14_core(q, nu, chi1z, chi2z, s_par)
-    dm = (q - 1) / (1 + q)
-    b = nu * dm**6
-    a = alpha - b * isco.isco_angular_momentum(np.clip(alpha, -1, 1))
-    # a is the explicit part of the equation; recompute it from the formula's first terms
-    d = (chi1z - q * chi2z) / (1 + q)
-    expect_a = 16 * nu**2 * spin._hlz14_poly(spin.HLZ14_SPIN_COEFFICIENTS, s_par, d, dm)
-    expect_a += s_par * (1 + 8 * nu) * dm**4
-    inside = np.abs(alpha) < 0.999
-    np.testing.assert_allclose(a[inside], expect_a[inside], rtol=0, atol=1e-9)
+    c1, c2 = rng.uniform(0.0, 0.95, n), rng.uniform(0.0, 0.95, n)
+    alpha = spin.healy_lousto_zlochower_2014(q, c1, c2)
+    erad = mass.healy_lousto_zlochower_2014(q, c1, c2)
+    eta = q / (1 + q) ** 2
+    dm = (q - 1) / (1 + q)  # the paper's (m_light - m_heavy) / M
+    s_tot = (c1 + q * q * c2) / (1 + q) ** 2
+    delta = (c1 - q * c2) / (1 + q)
+    explicit = 16 * eta**2 * _hlz14_poly(spin.HLZ14_SPIN_COEFFICIENTS, s_tot, delta, dm)
+    explicit += s_tot * (1 + 8 * eta) * dm**4
+    inside = alpha < 0.999
+    assert inside.mean() > 0.9
+    a = alpha[inside]
+    j_isco = isco.isco_angular_momentum(a)
+    np.testing.assert_allclose(
+        a, explicit[inside] + eta[inside] * dm[inside] ** 6 * j_isco, rtol=0, atol=1e-9
+    )
+    mf = 16 * eta**2 * _hlz14_poly(spin.HLZ14_MASS_COEFFICIENTS, s_tot, delta, dm)
+    mf += (1 + eta * (isco.isco_energy(np.clip(alpha, -1, 1)) + 11)) * dm**6
+    np.testing.assert_allclose(erad[inside], 1 - mf[inside], rtol=0, atol=1e-9)

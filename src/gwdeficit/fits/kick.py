@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from gwdeficit.fits.isco import ufunc_like
-from gwdeficit.fits.spin import _nu, spin_components
+from gwdeficit.fits.spin import compiled, spin_components
 
 __all__ = [
     "CAMPANELLI07_COEFFICIENTS",
@@ -77,52 +77,8 @@ def spin_difference_perp(
     """
     q = np.asarray(q, dtype=np.float64)
     _, _, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    return _dperp(q, chi1p, chi2p, cphi)
-
-
-def _dperp(q, chi1p, chi2p, cphi):
     qa2 = q * chi2p
     return np.sqrt(np.maximum(chi1p * chi1p + qa2 * (qa2 - 2.0 * chi1p * cphi), 0.0))
-
-
-def _kick_units(q, nu, chi1z, chi2z, dperp, cos_phase):
-    """Shared factors of the kick terms: nu^2/(1+q) times (1 - q), (a1z - q a2z), dperp cos."""
-    f = nu * nu / (1.0 + q)
-    return f * (1.0 - q), f * (chi1z - q * chi2z), f * dperp * cos_phase
-
-
-def _combine(nu, m_unit, perp_unit, v_par, c):
-    """|(v_m + v_perp cos xi) e1 + v_perp sin xi e2 + v_par ez| with the fit's A, B, H, xi."""
-    cxi, sxi = np.cos(np.radians(c["xi_deg"])), np.sin(np.radians(c["xi_deg"]))
-    x = c["A_kms"] * (1.0 + c["B"] * nu)
-    x *= m_unit
-    x += (c["H_kms"] * cxi) * perp_unit
-    x *= x
-    y = (c["H_kms"] * sxi) * perp_unit
-    y *= y
-    x += y
-    v_par *= v_par
-    x += v_par
-    return np.sqrt(x, out=x)
-
-
-def _lousto12_kernel(nu, s_par, m_unit, perp_unit, par_unit, c=LOUSTO12_COEFFICIENTS):
-    """Lousto et al. 2012 on the shared factors (:func:`_kick_units`); S = 2 s_par."""
-    st = 2.0 * s_par
-    hang = c["VC_kms"] * st
-    hang += c["VB_kms"]
-    hang *= st
-    hang += c["VA_kms"]
-    hang *= st
-    hang += c["V11_kms"]
-    hang *= 16.0
-    hang *= par_unit
-    return _combine(nu, m_unit, perp_unit, hang, c)
-
-
-def _campanelli07_kernel(nu, m_unit, perp_unit, par_unit, c=CAMPANELLI07_COEFFICIENTS):
-    """Campanelli et al. 2007 on the shared factors (:func:`_kick_units`)."""
-    return _combine(nu, m_unit, perp_unit, c["K_kms"] * par_unit, c)
 
 
 @ufunc_like
@@ -150,11 +106,7 @@ def lousto_2012(
     Calibrated range (approximate, from memory): NR simulations with 1/4 <~ q <= 1 and spins
     up to ~0.8-0.9; the maximum (partially aligned spins, equal masses) is ~5000 km/s.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    nu = _nu(q)
-    units = _kick_units(q, nu, chi1z, chi2z, _dperp(q, chi1p, chi2p, cphi), np.cos(phase))
-    return _lousto12_kernel(nu, (chi1z + q * q * chi2z) / (1.0 + q) ** 2, *units)
+    return compiled("LOUSTO12", q, chi1, chi2, tilt1, tilt2, phi12, phase)
 
 
 @ufunc_like
@@ -182,8 +134,4 @@ def campanelli_2007(
     spin terms were fitted to a handful of simulations with moderate spins (~0.5), so their
     coverage is sparse. The registry uses the common domain q >= 1/4, spins <= 0.8.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    nu = _nu(q)
-    units = _kick_units(q, nu, chi1z, chi2z, _dperp(q, chi1p, chi2p, cphi), np.cos(phase))
-    return _campanelli07_kernel(nu, *units)
+    return compiled("CAMPANELLI07", q, chi1, chi2, tilt1, tilt2, phi12, phase)

@@ -11,8 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from gwdeficit.fits.isco import _w_newton, ufunc_like
-from gwdeficit.fits.spin import _bkl_w, _hlz14_core, _hlz14_inputs, _nu, spin_components
+from gwdeficit.fits.isco import ufunc_like
+from gwdeficit.fits.spin import compiled
 
 __all__ = [
     "BMR12_COEFFICIENTS",
@@ -24,29 +24,6 @@ __all__ = [
 # Barausse, Morozova & Rezzolla 2012, ApJ 758, 63 (from memory; p0 alone gives E_rad/M for
 # equal non-spinning masses, 0.04827, against 0.04838 from Scheel et al. 2009).
 BMR12_COEFFICIENTS = {"p0": 0.04827, "p1": 0.01707}
-
-
-def _bmr12_kernel(nu, s_par, c=BMR12_COEFFICIENTS):
-    """BMR12 on s_par = (chi1z + q^2 chi2z) / (1 + q)^2, the spin along L over M^2.
-
-    E_isco(s_par) = w / sqrt(w^2 + 2) with w from :func:`fits.isco.isco_w_solve` (the same
-    value as the closed form of fits.isco.isco_energy to ~1e-13, without cube roots).
-    The formula is rearranged as (1 - E) nu (1 - 4 nu) + 16 nu^2 (p0 + 4 p1 a (a + 1)).
-    """
-    w = _w_newton(s_par)
-    e = w * w
-    e += 2.0
-    np.sqrt(e, out=e)
-    np.divide(w, e, out=e)  # E_isco
-    frac = 1.0 - e
-    frac *= nu * (1.0 - 4.0 * nu)
-    corr = s_par + 1.0
-    corr *= s_par
-    corr *= 4.0 * c["p1"]
-    corr += c["p0"]
-    corr *= 16.0 * nu * nu
-    frac += corr
-    return frac
 
 
 @ufunc_like
@@ -72,14 +49,7 @@ def barausse_morozova_rezzolla_2012(
     up to ~0.8 (aligned and a few precessing); exact test-particle limit by construction.
     In-plane spin components do not enter.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, _, _, _ = spin_components(chi1, chi2, tilt1, tilt2, 0.0)
-    return _bmr12_kernel(_nu(q), (chi1z + q * q * chi2z) / (1.0 + q) ** 2)
-
-
-def _isco_binding_from_w(nu, w):
-    """nu (1 - E_isco) with E_isco = w / sqrt(w^2 + 2) on the ISCO variable (fits.isco)."""
-    return nu * (1.0 - w / np.sqrt(w * w + 2.0))
+    return compiled("BMR12", q, chi1, chi2, tilt1, tilt2, 0.0)
 
 
 @ufunc_like
@@ -99,12 +69,7 @@ def isco_binding_energy(
     underestimates comparable-mass values (0.025 against 0.048 for equal non-spinning masses,
     Scheel et al. 2009) and is exact only as nu -> 0. No calibration: never in the default.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, _, _, _ = spin_components(chi1, chi2, tilt1, tilt2, 0.0)
-    nu = _nu(q)
-    opq = 1.0 + q
-    s_par = (chi1z + q * q * chi2z) / (opq * opq)
-    return _isco_binding_from_w(nu, _bkl_w(nu, s_par))
+    return compiled("BPT72", q, chi1, chi2, tilt1, tilt2, 0.0)
 
 
 @ufunc_like
@@ -134,5 +99,4 @@ def healy_lousto_zlochower_2014(
     1/6 <~ q <= 1 and spins up to ~0.8-0.85 (the registry uses q >= 1/4, chi <= 0.8).
     In-plane spin components do not enter.
     """
-    q, nu, chi1z, chi2z, s_par, _ = _hlz14_inputs(q, chi1, chi2, tilt1, tilt2, 0.0)
-    return _hlz14_core(q, nu, chi1z, chi2z, s_par)[1]
+    return compiled("HLZ14_MASS", q, chi1, chi2, tilt1, tilt2, 0.0)

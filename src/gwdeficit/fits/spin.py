@@ -7,8 +7,9 @@ the angles between each spin and the orbital angular momentum L (radians), ``phi
 azimuthal angle between the two in-plane spin components (radians). All functions broadcast
 like numpy ufuncs and return the dimensionless spin *magnitude* of the remnant, in [0, 1].
 
-The ``_kernel`` functions take precomputed spin components; the registry calls them on chunks
-so that trigonometric functions are evaluated once per row for all fits.
+The formulas are evaluated by the compiled scalar kernels of :mod:`gwdeficit.fits._kernels`
+(one implementation, shared with the remnant stage's fused loop); the docstrings here give
+the equations, sources and calibrated ranges.
 """
 
 from __future__ import annotations
@@ -30,9 +31,13 @@ __all__ = [
     "spin_components",
 ]
 
-_SQRT3 = np.sqrt(3.0)
-_TWO_SQRT3 = 2.0 * _SQRT3
-_L_W0 = 2.0 / (3.0 * _SQRT3)  # L_isco(w) = _L_W0 (1 + 2 w), see fits.isco
+
+def compiled(slot: str, *args: ArrayLike) -> NDArray[np.float64]:
+    """Evaluate the fit in kernel slot ``slot`` (a name in fits._kernels) on 1-d arrays."""
+    from gwdeficit.fits import _kernels
+
+    return _kernels.evaluate_slot(getattr(_kernels, slot), *args)
+
 
 # Barausse & Rezzolla 2009, ApJL 704, L40, fitted coefficients (from memory,
 # checked against Scheel et al. 2009: they give chi_f = 0.68646 for equal non-spinning masses).
@@ -73,34 +78,9 @@ def spin_components(
     return chi1 * np.cos(t1), chi2 * np.cos(t2), chi1 * np.sin(t1), chi2 * np.sin(t2), np.cos(p12)
 
 
-def _nu(q: NDArray[np.float64]) -> NDArray[np.float64]:
-    return q / ((1.0 + q) * (1.0 + q))
-
-
 # --------------------------------------------------------------------------------------------
 # Barausse & Rezzolla 2009
 # --------------------------------------------------------------------------------------------
-
-
-def _br09_kernel(q, q2, nu, sz, spin_sq, opq2, c=BR09_COEFFICIENTS):
-    """BR09 on precomputed inputs.
-
-    q2 = q^2, sz = chi1z + q^2 chi2z (spins along L), spin_sq = |chi1 + q^2 chi2|^2 (vectors),
-    opq2 = (1 + q)^2.
-    """
-    opq2_ = 1.0 + q2
-    ell = spin_sq * (c["s4"] / (opq2_ * opq2_))
-    ell += (c["s5"] * nu + (c["t0"] + 2.0)) * sz / opq2_
-    ell += _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
-    lq = np.abs(ell, out=ell)
-    lq *= q
-    # |a1 + a2 q^2 + l q Lhat|^2 = spin_sq + l q (2 sz + l q) >= 0 up to rounding
-    rad = 2.0 * sz + lq
-    rad *= lq
-    rad += spin_sq
-    chif = np.sqrt(np.maximum(rad, 0.0, out=rad), out=rad)
-    chif /= opq2
-    return np.minimum(chif, 1.0)
 
 
 @ufunc_like
@@ -131,35 +111,12 @@ def barausse_rezzolla_2009(
     the calibrated range) the formula exceeds the Kerr bound (da_f/dnu = +0.45 at a = 1, nu = 0,
     where the test-particle slope is 0); results are capped at 1.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    q2 = q * q
-    sz = chi1z + q2 * chi2z
-    spin_sq = sz**2 + chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi
-    return _br09_kernel(q, q2, _nu(q), sz, spin_sq, (1.0 + q) ** 2)
+    return compiled("BR09", q, chi1, chi2, tilt1, tilt2, phi12)
 
 
 # --------------------------------------------------------------------------------------------
 # Rezzolla et al. 2008 (aligned spins), with the in-plane spin added in quadrature
 # --------------------------------------------------------------------------------------------
-
-
-def _r08_kernel(q2, nu, sz, perp_sq, c=R08_COEFFICIENTS):
-    """R08 on precomputed inputs.
-
-    sz = chi1z + q^2 chi2z, perp_sq = |chi1p + q^2 chi2p|^2 / (1 + q)^4.
-    """
-    at = sz / (1.0 + q2)
-    par = c["s4"] * at
-    par += c["s5"] * nu + c["t0"]
-    par *= at
-    par += _TWO_SQRT3 + nu * (c["t2"] + c["t3"] * nu)
-    par *= nu
-    par += at
-    par *= par
-    par += perp_sq
-    chif = np.sqrt(par, out=par)
-    return np.minimum(chif, 1.0)
 
 
 @ufunc_like
@@ -189,46 +146,12 @@ def rezzolla_2008(
     1/4 <~ q <= 1 and |a| up to ~0.8; built to give a_f -> a1 as q -> 0. Capped at the Kerr
     bound 1, which the formula exceeds for near-extremal aligned spins at small q.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    q2 = q * q
-    perp_sq = (chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi) / (1.0 + q) ** 4
-    return _r08_kernel(q2, _nu(q), chi1z + q2 * chi2z, perp_sq)
+    return compiled("R08", q, chi1, chi2, tilt1, tilt2, phi12)
 
 
 # --------------------------------------------------------------------------------------------
 # Buonanno, Kidder & Lehner 2008 (parameter-free)
 # --------------------------------------------------------------------------------------------
-
-BKL_NEWTON_STEPS = 5
-
-
-def _bkl_w(nu, s_par, steps: int = BKL_NEWTON_STEPS):
-    """Solve chi = nu L_isco(chi) + s_par for the ISCO variable w = sqrt(3 r_isco - 2).
-
-    In w the equation reads F(w) = u (4 - w) / 3 - nu L0 (1 + 2 w) - s_par = 0 with
-    u = sqrt((w^2 + 2) / 3), L0 = 2 / (3 sqrt 3) (fits.isco); F'(w) = -2 (w - 1)^2 / (9 u)
-    - 2 L0 nu < 0, so the root in [1, 5] is unique (|s_par| <= 1 - 2 nu keeps it inside).
-    Start: w0 = 1 + (13.5 (1 - s_par))^(1/3), the inverse of a(w) ~ 1 - 2 (w - 1)^3 / 27 near
-    the extremal spin, where F is flat and Newton from a poor start would converge only
-    linearly. Then Newton steps on whole arrays, clipped to [1, 5]; the spin is returned as
-    nu L(w) + s_par. After 5 steps its error is at rounding level over 1e-8 <= q <= 1 and
-    every spin (checked against scipy's brentq in the tests).
-    """
-    w = np.clip(1.0 + np.cbrt(13.5 * (1.0 - s_par)), 1.0, 5.0)
-    two_l0_nu = 2.0 * _L_W0 * nu
-    for _ in range(steps):
-        u = np.sqrt((w * w + 2.0) / 3.0)
-        f = u * (4.0 - w) / 3.0 - _L_W0 * nu * (1.0 + 2.0 * w) - s_par
-        wm1 = w - 1.0
-        df = -2.0 * wm1 * wm1 / (9.0 * u) - two_l0_nu
-        w = np.clip(w - f / np.minimum(df, -1e-300), 1.0, 5.0)
-    return w
-
-
-def _bkl_par(nu, s_par, w):
-    """Signed final spin along L from the solved ISCO variable: nu L_isco(w) + s_par."""
-    return _L_W0 * nu * (1.0 + 2.0 * w) + s_par
 
 
 @ufunc_like
@@ -254,21 +177,7 @@ def buonanno_kidder_lehner_2008(
     of inclined orbits is not reproduced; the magnitude is capped at the Kerr bound 1 (reached
     for near-extremal in-plane primary spins). No calibration: an estimate, never in the default.
     """
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    q2 = q * q
-    opq4 = (1.0 + q) ** 4
-    s_par = (chi1z + q2 * chi2z) / (1.0 + q) ** 2
-    perp_sq = (chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi) / opq4
-    nu = _nu(q)
-    par = _bkl_par(nu, s_par, _bkl_w(nu, s_par))
-    return _bkl_magnitude(par, perp_sq)
-
-
-def _bkl_magnitude(par, perp_sq):
-    """|chi_f| from the parallel and in-plane parts, capped at the Kerr bound 1."""
-    chif = np.sqrt(par * par + perp_sq)
-    return np.minimum(chif, 1.0)
+    return compiled("BKL08", q, chi1, chi2, tilt1, tilt2, phi12)
 
 
 # --------------------------------------------------------------------------------------------
@@ -280,7 +189,7 @@ def _bkl_magnitude(par, perp_sq):
 # M0 against Scheel et al. 2009 (0.68646, 0.95162), the GW150914-like binary against Abbott
 # et al. 2016, and the whole aligned-spin domain against Barausse & Rezzolla 2009 and
 # Barausse, Morozova & Rezzolla 2012 within the fits' quoted accuracies; the sign convention
-# of the spin difference (see _hlz14_core) is the one that agrees (the other disagrees by up
+# of the spin difference (see fits._kernels.hlz14) is the one that agrees (the other disagrees by up
 # to 0.07 in the final spin).
 HLZ14_SPIN_COEFFICIENTS = {
     "0": 0.686710,
@@ -326,73 +235,6 @@ HLZ14_MASS_COEFFICIENTS = {
 }
 
 
-def _hlz14_poly(c, s, d, dm):
-    """The fourth-order polynomial in (S, Delta, delta m) shared by both HLZ14 formulas."""
-    s2, d2, dm2 = s * s, d * d, dm * dm
-    ddm = d * dm
-    return (
-        c["0"]
-        + c["1"] * s
-        + c["2a"] * ddm
-        + c["2b"] * s2
-        + c["2c"] * d2
-        + c["2d"] * dm2
-        + c["3a"] * ddm * s
-        + c["3b"] * s * d2
-        + c["3c"] * s2 * s
-        + c["3d"] * s * dm2
-        + c["4a"] * ddm * s2
-        + c["4b"] * d2 * ddm
-        + c["4c"] * d2 * d2
-        + c["4d"] * s2 * s2
-        + c["4e"] * d2 * s2
-        + c["4f"] * dm2 * dm2
-        + c["4g"] * ddm * dm2
-        + c["4h"] * d2 * dm2
-        + c["4i"] * s2 * dm2
-    )
-
-
-def _hlz14_core(q, nu, chi1z, chi2z, s_par):
-    """Signed final spin along L and E_rad / M of Healy, Lousto & Zlochower 2014.
-
-    With body 1 the heavier (q = m2/m1 <= 1), the paper's variables (its body 1 the lighter)
-    are eta = nu, delta m = (m_light - m_heavy)/M = (q - 1)/(1 + q), S = s_par and
-    Delta = (S_heavy/m_heavy - S_light/m_light)/M = (chi1z - q chi2z)/(1 + q). The ISCO terms
-    use the final hole's spin, so the spin equation alpha = A + B L_isco(alpha) is solved for
-    the ISCO variable w exactly as in :func:`_bkl_w` (B = eta dm^6 takes the place of nu).
-    """
-    dm = (q - 1.0) / (1.0 + q)
-    d = (chi1z - q * chi2z) / (1.0 + q)
-    dm2 = dm * dm
-    dm4 = dm2 * dm2
-    dm6 = dm4 * dm2
-    four_eta_sq = 16.0 * nu * nu
-    a = four_eta_sq * _hlz14_poly(HLZ14_SPIN_COEFFICIENTS, s_par, d, dm)
-    a += s_par * (1.0 + 8.0 * nu) * dm4
-    b = nu * dm6
-    w = _bkl_w(b, a)
-    alpha = _bkl_par(b, a, w)
-    e_isco = w / np.sqrt(w * w + 2.0)
-    mf = four_eta_sq * _hlz14_poly(HLZ14_MASS_COEFFICIENTS, s_par, d, dm)
-    mf += (1.0 + nu * (e_isco + 11.0)) * dm6
-    return alpha, 1.0 - mf
-
-
-def _hlz14_inputs(q, chi1, chi2, tilt1, tilt2, phi12):
-    """Heavier body first, then (q, nu, chi1z, chi2z, s_par, perp_sq) for the HLZ14 formulas."""
-    q = np.asarray(q, dtype=np.float64)
-    chi1z, chi2z, chi1p, chi2p, cphi = spin_components(chi1, chi2, tilt1, tilt2, phi12)
-    swap = q > 1.0  # the formulas are written for q <= 1; exchange the bodies with their spins
-    q = np.where(swap, 1.0 / q, q)
-    chi1z, chi2z = np.where(swap, chi2z, chi1z), np.where(swap, chi1z, chi2z)
-    chi1p, chi2p = np.where(swap, chi2p, chi1p), np.where(swap, chi1p, chi2p)
-    q2 = q * q
-    s_par = (chi1z + q2 * chi2z) / (1.0 + q) ** 2
-    perp_sq = (chi1p**2 + (q2 * chi2p) ** 2 + 2 * q2 * chi1p * chi2p * cphi) / (1.0 + q) ** 4
-    return q, _nu(q), chi1z, chi2z, s_par, perp_sq
-
-
 @ufunc_like
 def healy_lousto_zlochower_2014(
     q: ArrayLike,
@@ -422,6 +264,4 @@ def healy_lousto_zlochower_2014(
     aligned-spin NR simulations with 1/6 <~ q <= 1 and spins up to ~0.8-0.85; the registry
     uses the common domain q >= 1/4, chi <= 0.8. Capped at the Kerr bound 1.
     """
-    q, nu, chi1z, chi2z, s_par, perp_sq = _hlz14_inputs(q, chi1, chi2, tilt1, tilt2, phi12)
-    alpha, _ = _hlz14_core(q, nu, chi1z, chi2z, s_par)
-    return _bkl_magnitude(alpha, perp_sq)
+    return compiled("HLZ14_SPIN", q, chi1, chi2, tilt1, tilt2, phi12)
