@@ -5,8 +5,8 @@ fits.spin, fits.mass and fits.kick (which carry the equations, sources and calib
 in their docstrings) and the remnant stage (:func:`bbh_block`) both run the compiled loops
 below through :func:`raw_block`. Each loop is one formula over a block of rows, written with
 arithmetic, sqrt, min and max only, so that the compiler vectorises it (SIMD across rows);
-the cube roots that start the ISCO Newton iterations come from numpy's vectorised
-single-precision exp and log between the loops. This replaces the ~200 numpy array passes the
+the cube roots (ISCO closed form, starts of the Newton iterations) come from numpy's
+vectorised float64 ``cbrt`` between the loops. This replaces the ~200 numpy array passes the
 same formulas need as array expressions (docs/performance.md, "Remnant fits").
 
 Conventions: body 1 is the heavier (q = m2/m1 <= 1; :func:`components` exchanges the bodies
@@ -59,7 +59,6 @@ C_HS = _CC["H_kms"] * math.sin(math.radians(_CC["xi_deg"]))
 C_K = _CC["K_kms"]
 
 BKL_NEWTON_STEPS = 5
-ISCO_NEWTON_STEPS = 3
 
 # Rows of the work array filled by :func:`components` (one block of rows per column).
 (
@@ -78,8 +77,12 @@ ISCO_NEWTON_STEPS = 3
     W_CPH,
     W_A,
     W_B,
-) = range(15)
-N_WORK = 15
+    W_CP,
+    W_CM,
+    W_HR,
+) = range(18)
+N_WORK = 18
+_CBRT_13_5 = 13.5 ** (1.0 / 3.0)
 
 
 @njit(**_JIT)
@@ -108,14 +111,17 @@ def _in_plane(m1, m2, x1, x2, st1, st2, chi1p, chi2p):
 
 
 @njit(**_JIT)
-def _along_l(q, chi1z, chi2z, nu, sz, s_par):
-    """nu = q/(1+q)^2, sz = chi1z + q^2 chi2z, s_par = sz/(1+q)^2."""
+def _along_l(q, chi1z, chi2z, nu, sz, s_par, one_plus, one_minus):
+    """nu = q/(1+q)^2, sz = chi1z + q^2 chi2z, s_par = sz/(1+q)^2, 1 + s_par, 1 - s_par."""
     for i in range(q.shape[0]):
         opq2 = (1.0 + q[i]) * (1.0 + q[i])
         z = chi1z[i] + q[i] * q[i] * chi2z[i]
         nu[i] = q[i] / opq2
         sz[i] = z
-        s_par[i] = z / opq2
+        s = z / opq2
+        s_par[i] = s
+        one_plus[i] = max(1.0 + s, 0.0)
+        one_minus[i] = max(1.0 - s, 0.0)
 
 
 @njit(**_JIT)
@@ -143,15 +149,17 @@ def components(m1, m2, c1, c2, ct1, st1, ct2, st2, cp12, cph, work) -> None:
     Fills ``work[W_*]``: q = m_light/m_heavy, total mass, the spin magnitudes of the heavier
     (x1) and lighter (x2) body, components along L (and, in W_A/W_B as scratch, in the
     plane), nu = q/(1+q)^2, sz = chi1z + q^2 chi2z, s_par = sz/(1+q)^2, |chi1p + q^2 chi2p|^2
-    (in-plane total spin, squared), the same over (1+q)^4, |chi1p - q chi2p| and cos of the
-    phase at merger. Several short loops: each one vectorises, one long loop did not.
+    (in-plane total spin, squared), the same over (1+q)^4, |chi1p - q chi2p|, cos of the
+    phase at merger, and (W_CP, W_CM) 1 + s_par and 1 - s_par, whose cube roots
+    :func:`isco_cube_roots` takes when a fit needs them. Several short loops: each one
+    vectorises, one long loop did not.
     """
     w = work
     _heavier_first(
         m1, m2, c1, c2, ct1, ct2, w[W_Q], w[W_MTOT], w[W_X1], w[W_X2], w[W_CHI1Z], w[W_CHI2Z]
     )
     _in_plane(m1, m2, w[W_X1], w[W_X2], st1, st2, w[W_A], w[W_B])
-    _along_l(w[W_Q], w[W_CHI1Z], w[W_CHI2Z], w[W_NU], w[W_SZ], w[W_SPAR])
+    _along_l(w[W_Q], w[W_CHI1Z], w[W_CHI2Z], w[W_NU], w[W_SZ], w[W_SPAR], w[W_CP], w[W_CM])
     _in_plane_sums(w[W_Q], w[W_A], w[W_B], cp12, w[W_INPLANE], w[W_PERP])
     _in_plane_difference(w[W_Q], w[W_A], w[W_B], cp12, w[W_DPERP])
     w[W_CPH] = cph
@@ -225,15 +233,17 @@ def hlz14_explicit(work):
     """The explicit part A and the ISCO weight B = nu dm^6 of the HLZ14 spin equation.
 
     alpha = A + B L_isco(alpha) (Healy, Lousto & Zlochower 2014; fits.spin) into work[W_A],
-    work[W_B]; body 1 the heavier here, so the paper's dm = (q - 1)/(1 + q) and
-    Delta = (chi1z - q chi2z)/(1 + q).
+    work[W_B], and max(1 - A, 0) into work[W_HR] (its cube root starts the solve); body 1 the
+    heavier here, so the paper's dm = (q - 1)/(1 + q) and Delta = (chi1z - q chi2z)/(1 + q).
     """
     for i in range(work.shape[1]):
         q, nu, s = work[W_Q, i], work[W_NU, i], work[W_SPAR, i]
         dm, d = _hlz14_vars(q, work[W_CHI1Z, i], work[W_CHI2Z, i])
         dm4 = dm * dm * dm * dm
-        work[W_A, i] = 16.0 * nu * nu * hlz14_poly(HLZ_L, s, d, dm) + s * (1.0 + 8.0 * nu) * dm4
+        a = 16.0 * nu * nu * hlz14_poly(HLZ_L, s, d, dm) + s * (1.0 + 8.0 * nu) * dm4
+        work[W_A, i] = a
         work[W_B, i] = nu * dm4 * dm * dm
+        work[W_HR, i] = max(1.0 - a, 0.0)
 
 
 @njit(**_JIT)
@@ -241,21 +251,21 @@ def solve_spin_isco(weight, explicit, root, w_out):
     """Solve chi = weight L_isco(chi) + explicit for the ISCO variable w, row by row.
 
     F(w) = u (4 - w)/3 - weight L0 (1 + 2 w) - explicit with u = sqrt((w^2 + 2)/3) and
-    L0 = 2/(3 sqrt 3) is decreasing in w, so the root in [1, 5] is unique (the spin equation
-    of Buonanno, Kidder & Lehner 2008, with L_isco and a(w) from Bardeen, Press & Teukolsky
-    1972, fits.isco). Start w0 = 1 + root (root = (13.5 (1 - explicit))^(1/3), the inverse of
-    a(w) ~ 1 - 2 (w - 1)^3 / 27 near the extremal spin), five Newton steps clipped to [1, 5]:
-    rounding level against scipy's brentq (tested).
+    L0 = 2/(3 sqrt 3) is decreasing (and concave) in w, so the root in [1, 5] is unique (the
+    spin equation of Buonanno, Kidder & Lehner 2008, with L_isco and a(w) from Bardeen, Press
+    & Teukolsky 1972, fits.isco). Start w0 = 1 + 13.5^(1/3) root (root = (1 - explicit)^(1/3),
+    the inverse of a(w) ~ 1 - 2 (w - 1)^3 / 27 near the extremal spin), five Newton steps
+    clipped to [1, 5], each written with one square root and one division: rounding level
+    against scipy's brentq (tested).
     """
     for i in range(w_out.shape[0]):
-        nu, s = weight[i], explicit[i]
-        w = min(max(1.0 + root[i], 1.0), 5.0)
-        two_l0_nu = 2.0 * _L_W0 * nu
+        cl, s = _L_W0 * weight[i], explicit[i]
+        w = min(max(1.0 + _CBRT_13_5 * root[i], 1.0), 5.0)
         for _ in range(BKL_NEWTON_STEPS):
-            u = math.sqrt((w * w + 2.0) / 3.0)
-            f = u * (4.0 - w) / 3.0 - _L_W0 * nu * (1.0 + 2.0 * w) - s
-            df = -2.0 * (w - 1.0) * (w - 1.0) / (9.0 * u) - two_l0_nu
-            w = min(max(w - f / min(df, -1e-300), 1.0), 5.0)
+            u = math.sqrt((w * w + 2.0) * (1.0 / 3.0))
+            f3 = u * (4.0 - w) - 3.0 * (cl * (1.0 + 2.0 * w) + s)  # 3 F(w)
+            den = -2.0 * (w - 1.0) * (w - 1.0) - 18.0 * cl * u  # 9 u F'(w)
+            w = min(max(w - 3.0 * u * f3 / min(den, -1e-300), 1.0), 5.0)
         w_out[i] = w
 
 
@@ -287,25 +297,21 @@ def bkl_finish(work, w, spin_out, frac_out):
 
 
 @njit(**_JIT)
-def bmr12(work, root, out):
+def bmr12(work, out):
     """Barausse, Morozova & Rezzolla 2012 E_rad / M (fits.mass).
 
-    E_isco(s_par) = w / sqrt(w^2 + 2), w = sqrt(3 r_isco - 2) by three Newton steps on the
-    ISCO condition a(w) = u (4 - w)/3 = s_par (Bardeen, Press & Teukolsky 1972) from
-    w0 = 1 + root (1 + 0.3535 x - 0.0935 x^2), root = (13.5 x)^(1/3), x = 1 - s_par (within
-    0.11 of w on [-1, 1]); E_isco within 3e-11 of the closed form (tested). Rearranged as
-    (1 - E) nu (1 - 4 nu) + 16 nu^2 (p0 + 4 p1 a (a + 1)).
+    E_isco(s_par) = sqrt(1 - 2/(3 r_isco)) with r_isco from the closed form of Bardeen, Press
+    & Teukolsky 1972 (eq. 2.21; fits.isco), the cube roots (1 + s_par)^(1/3) and
+    (1 - s_par)^(1/3) taken beforehand (work[W_CP], work[W_CM], :func:`isco_cube_roots`).
+    Rearranged as (1 - E) nu (1 - 4 nu) + 16 nu^2 (p0 + 4 p1 a (a + 1)).
     """
     for i in range(out.shape[0]):
         nu, a = work[W_NU, i], work[W_SPAR, i]
-        x = 1.0 - a
-        w = 1.0 + root[i] * (1.0 + x * (0.3535 - 0.0935 * x))
-        for _ in range(ISCO_NEWTON_STEPS):
-            u = math.sqrt((w * w + 2.0) / 3.0)
-            g = u * (4.0 - w) / 3.0 - a
-            d = -2.0 / 9.0 * (w - 1.0) * (w - 1.0) / u
-            w = min(max(w - g / min(d, -1e-300), 1.0), 5.0)
-        e = w / math.sqrt(w * w + 2.0)
+        cp, cm = work[W_CP, i], work[W_CM, i]
+        z1 = 1.0 + cp * cm * (cp + cm)
+        z2 = math.sqrt(3.0 * a * a + z1 * z1)
+        r = 3.0 + z2 - math.copysign(math.sqrt(max((3.0 - z1) * (3.0 + z1 + 2.0 * z2), 0.0)), a)
+        e = math.sqrt(1.0 - 2.0 / (3.0 * r))
         out[i] = (1.0 - e) * nu * (1.0 - 4.0 * nu) + 16.0 * nu * nu * (
             P0 + 4.0 * P1 * a * (a + 1.0)
         )
@@ -333,14 +339,15 @@ def kick(work, hc, hs, k_par, hang_up, out):
         out[i] = math.sqrt(x * x + y * y + v_par * v_par)
 
 
-def _root_cube(x: NDArray[np.float64]) -> NDArray[np.float32]:
-    """(13.5 max(x, 0))^(1/3) in single precision via numpy's vectorised exp and log.
+def isco_cube_roots(work: NDArray[np.float64], plus: bool) -> None:
+    """Cube roots of work[W_CM] (1 - s_par) and, if ``plus``, work[W_CP] (1 + s_par), in place.
 
-    Only starts Newton iterations (accuracy ~1e-7 is ample); 0 where x <= 0.
+    numpy's float64 cbrt is vectorised (SIMD); the compiled loops cannot call a vectorised
+    one. Used by the BPT closed form of BMR12 and the starts of the BKL solve.
     """
-    y = (13.5 * np.maximum(x, 0.0)).astype(np.float32)
-    with np.errstate(divide="ignore"):
-        return np.exp(np.log(y) * np.float32(1.0 / 3.0))
+    np.cbrt(work[W_CM], out=work[W_CM])
+    if plus:
+        np.cbrt(work[W_CP], out=work[W_CP])
 
 
 def raw_block(
@@ -370,15 +377,19 @@ def raw_block(
         r08(work, raw[R08])
     if enabled[HLZ14_SPIN] or enabled[HLZ14_MASS]:
         hlz14_explicit(work)
+        root = np.cbrt(work[W_HR], out=work[W_HR])
         w = np.empty(work.shape[1])
-        solve_spin_isco(work[W_B], work[W_A], _root_cube(1.0 - work[W_A]), w)
+        solve_spin_isco(work[W_B], work[W_A], root, w)
         hlz14_finish(work, w, raw[HLZ14_SPIN], raw[HLZ14_MASS])
-    if enabled[BKL08] or enabled[BPT72]:
+    bkl = bool(enabled[BKL08] or enabled[BPT72])
+    if bkl or enabled[BMR12]:
+        isco_cube_roots(work, plus=bool(enabled[BMR12]))
+    if bkl:
         w = np.empty(work.shape[1])
-        solve_spin_isco(work[W_NU], work[W_SPAR], _root_cube(1.0 - work[W_SPAR]), w)
+        solve_spin_isco(work[W_NU], work[W_SPAR], work[W_CM], w)
         bkl_finish(work, w, raw[BKL08], raw[BPT72])
     if enabled[BMR12]:
-        bmr12(work, _root_cube(1.0 - work[W_SPAR]), raw[BMR12])
+        bmr12(work, raw[BMR12])
     if enabled[LOUSTO12]:
         kick(work, L_HC, L_HS, 0.0, True, raw[LOUSTO12])
     if enabled[CAMPANELLI07]:
