@@ -4,7 +4,8 @@ section "Remnant fits").
 In one run, on N rows of invented precessing binaries (seeded generator):
 - t_default: :func:`gwdeficit.remnant.remnant_arrays` with the default set (the NR-calibrated
   fits: final mass / radiated energy, final spin, recoil, with mean, spread, range flags and
-  the kick-phase draw);
+  the kick-phase draw) on the default threads (every usable CPU, or GWDEFICIT_THREADS);
+- t_one: the same on one thread;
 - t_all: the same with every registered fit (adds the parameter-free estimates);
 - t_pass: one numpy elementwise pass over the same arrays, ``m1 + m2`` (new result array);
 - t_loop: a per-row Python loop over L rows calling the same default fits' public functions on
@@ -29,7 +30,7 @@ import numpy as np
 
 from gwdeficit.fits import kick, mass, spin
 from gwdeficit.fits.registry import REGISTRY
-from gwdeficit.remnant import remnant_arrays
+from gwdeficit.remnant import default_threads, remnant_arrays
 
 S3 = math.sqrt(3.0)
 L_W0 = 2 / (3 * S3)
@@ -138,8 +139,9 @@ def main(n: int, n_loop: int) -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         t_pass = best_of(5, lambda: m1 + m2)
-        t_default = best_of(2, lambda: remnant_arrays(*args, fits=default, seed=1))
-        t_all = best_of(2, lambda: remnant_arrays(*args, seed=1))
+        t_default = best_of(5, lambda: remnant_arrays(*args, fits=default, seed=1))
+        t_one = best_of(5, lambda: remnant_arrays(*args, fits=default, seed=1, threads=1))
+        t_all = best_of(5, lambda: remnant_arrays(*args, seed=1))
 
         fns = [f for f in REGISTRY if f.in_default]
         phase = rng.uniform(0, 2 * np.pi, n_loop)
@@ -172,11 +174,12 @@ def main(n: int, n_loop: int) -> None:
             err = np.max(np.abs(got[:, j] * scale - check[key]) / np.maximum(np.abs(check[key]), 1))
             assert err < 1e-5, (key, err)  # same formulas (float32 angles in the array core)
 
-    print(f"rows: {n:,}; default fits: {', '.join(default)}")
+    print(f"rows: {n:,}; threads: {default_threads()}; default fits: {', '.join(default)}")
     print("                                 wall [s]   cpu [s]   wall ratio  cpu ratio")
     for label, (w, c) in (
         ("one numpy pass (m1 + m2)", t_pass),
         ("default set (remnant_arrays)", t_default),
+        ("default set, one thread", t_one),
         ("all registered fits", t_all),
         (f"per-row loop, {n_loop:,} rows scaled", t_loop),
         (f"math-module loop, {n_loop:,} scaled", t_math),
@@ -184,7 +187,8 @@ def main(n: int, n_loop: int) -> None:
         print(f"{label:32s} {w:9.4f} {c:9.4f} {w / t_pass[0]:11.1f} {c / t_pass[1]:10.1f}")
     print(
         f"default / one pass: wall {t_default[0] / t_pass[0]:.1f}, "
-        f"cpu {t_default[1] / t_pass[1]:.1f} (target <= 40)"
+        f"cpu {t_default[1] / t_pass[1]:.1f} (target <= 40); "
+        f"one thread: wall {t_one[0] / t_pass[0]:.1f}"
     )
     print(
         f"loop / default:     wall {t_loop[0] / t_default[0]:.0f}, "

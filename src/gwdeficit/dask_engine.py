@@ -242,6 +242,7 @@ def dask_remnants(
         dict(inputs) if inputs is not None else {src: wd.file_sha256(cat)},
         ns_options=stream._ns_options(ns_options),
         has_ns=stream.has_neutron_stars(cat),
+        threads=1,  # the cluster runs tasks side by side: one fits thread per task
     )
     task = dask.delayed(_piece_task, pure=True)
     tasks = (task(_run_job, p, None, (job,)) for p in parts)

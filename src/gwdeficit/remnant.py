@@ -25,10 +25,13 @@ wired into that table.
 
 from __future__ import annotations
 
+import os
+import queue
 import sys
 import types
 import warnings
 from collections.abc import Callable, Iterator, Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -63,6 +66,7 @@ __all__ = [
     "RemnantEstimate",
     "RemnantInputError",
     "compute_remnants",
+    "default_threads",
     "remnant",
     "remnant_arrays",
     "summarize_remnants",
@@ -167,7 +171,7 @@ class _BbhInput:
     values: Mapping[str, NDArray[np.float64]]  # _INPUT_COLUMNS; phi12 may hold NaN
     phase: NDArray[np.float64]  # in-plane spin phase at merger, rad
     phi12_draws: NDArray[np.float64] | None  # replacements for missing phi12, rad
-    labels: NDArray[Any]  # row numbers for error messages
+    labels: NDArray[Any] | None  # row numbers for error messages (None: 1-based positions)
     source: str
 
 
@@ -178,19 +182,45 @@ def _block_is_valid(m1, m2, c1, c2, t1, t2, p) -> bool:
     return bool(all_valid(m1, m2, c1, c2, t1, t2, p, -TILT_TOLERANCE, np.pi + TILT_TOLERANCE))
 
 
+def default_threads(threads: int | None = None) -> int:
+    """Threads for the BBH fits: ``threads`` if given (>= 1), else the environment variable
+    ``GWDEFICIT_THREADS``, else the CPUs this process may run on. Results do not depend on it."""
+    if threads is None:
+        env = os.environ.get("GWDEFICIT_THREADS", "").strip()
+        if env:
+            try:
+                threads = int(env)
+            except ValueError as exc:
+                raise schema.OptionError(
+                    f"GWDEFICIT_THREADS={env!r} is not a whole number of threads"
+                ) from exc
+        else:
+            try:
+                threads = len(os.sched_getaffinity(0))
+            except (AttributeError, OSError):  # not on Linux
+                threads = os.cpu_count() or 1
+    if threads < 1:
+        raise schema.OptionError(f"threads must be at least 1 (got {threads})")
+    return int(threads)
+
+
 def _bbh_core(
     inp: _BbhInput,
     fits: Sequence[Fit],
     progress: Callable[[int], None] | None = None,
     block_rows: int = BLOCK_ROWS,
+    threads: int | None = None,
 ) -> tuple[dict[str, NDArray[Any]], dict[str, int], int]:
     """Validate and evaluate ``fits`` block by block on binary-black-hole rows.
 
     The formulas run as compiled loops over each block (:mod:`gwdeficit.fits._kernels`)
     writing straight into the output columns; numpy computes the single-precision cosines and
-    sines of the block's angles (vectorised) beforehand. Returns the output columns, per fit
-    the number of rows outside its calibrated range, and the number of rows whose missing
-    phi12 was replaced by a draw where it matters (both spins with an in-plane component).
+    sines of the block's angles (vectorised) beforehand. Blocks are independent and run on
+    ``threads`` threads (:func:`default_threads`; the compiled loops and numpy release the
+    GIL), each with its own scratch; every row's value is the same for any number of threads.
+    Returns the output columns, per fit the number of rows outside its calibrated range, and
+    the number of rows whose missing phi12 was replaced by a draw where it matters (both spins
+    with an in-plane component).
     """
     from gwdeficit.fits import _kernels as kn
 
@@ -202,61 +232,94 @@ def _bbh_core(
     plan = _kernel_plan(fits)
     out = np.empty((len(plan.names), n))
     row = {name: j for j, name in enumerate(plan.names)}
+    mass_rows = [
+        (f.slot, row[f.columns[0]], row[f.columns[1]]) for f in fits if f.quantity == "final_mass"
+    ]
     ok = np.empty(n, dtype=bool)
-    outside_by_slot = np.zeros(kn.N_SLOTS, dtype=np.int64)
     b = min(block_rows, max(n, 1))
-    work = np.empty((kn.N_WORK, b))
-    frac = np.empty((kn.N_SLOTS, b))  # E_rad / M of the mass fits, and unused slots
-    range_scratch = np.empty(b, dtype=bool)
+    starts = range(0, n, block_rows)
+    n_threads = min(default_threads(threads), max(len(starts), 1))
+    scratch: queue.SimpleQueue[tuple[NDArray[Any], ...]] = queue.SimpleQueue()
+    for _ in range(n_threads):
+        # work columns, E_rad / M of the mass fits (and unused slots), range flags
+        scratch.put((np.empty((kn.N_WORK, b)), np.empty((kn.N_SLOTS, b)), np.empty(b, bool)))
+
+    def run_block(start: int) -> tuple[NDArray[np.int64], int, int]:
+        """One block: output rows [start, start + k); (rows outside per slot, phi drawn, k)."""
+        work, frac, range_scratch = scratch.get()
+        try:
+            sl = slice(start, min(start + block_rows, n))
+            k = sl.stop - sl.start
+            outside_by_slot = np.zeros(kn.N_SLOTS, dtype=np.int64)
+            a1, a2, c1, c2 = m1[sl], m2[sl], chi1[sl], chi2[sl]
+            t1, t2, p = tilt1[sl], tilt2[sl], phi12[sl]
+            if not _block_is_valid(a1, a2, c1, c2, t1, t2, p):
+                _validate_bbh(inp.source, inp.labels, v)  # raises, naming every bad row
+            missing = np.isnan(p)
+            any_missing = inp.phi12_draws is not None and bool(missing.any())
+            if any_missing:
+                p = np.where(missing, inp.phi12_draws[sl], p)
+            ct1, st1 = _cos_sin32(t1)
+            ct2, st2 = _cos_sin32(t2)
+            # tilts lie in [0, pi]; float32(pi) > pi makes its sine -9e-8: clip to the exact 0
+            np.maximum(st1, 0.0, out=st1)
+            np.maximum(st2, 0.0, out=st2)
+            n_phi = 0
+            if any_missing:
+                inplane = (c1 * st1 > 1e-12) & (c2 * st2 > 1e-12)
+                n_phi = int(np.count_nonzero(missing & inplane))
+            w = work[:, :k]
+            raw = [out[j, sl] if j >= 0 else frac[slot, :k] for slot, j in enumerate(plan.raw_rows)]
+            kn.raw_block(
+                plan.enabled, a1, a2, c1, c2, ct1, st1, ct2, st2, _cos32(p),
+                _cos32(inp.phase[sl]), raw, w,
+            )  # fmt: skip
+            mtot = w[kn.W_MTOT]
+            for slot, mf_row, erad_row in mass_rows:
+                kn.mass_columns(mtot, raw[slot], out[mf_row, sl], out[erad_row, sl])
+            for lo, hi, stat in plan.stats:
+                kn.mean_spread(out[lo:hi, sl], out[stat, sl], out[stat + 1, sl], out[stat + 2, sl])
+            erad = out[row["erad_msun"], sl]
+            np.subtract(mtot, erad, out=out[row["mf_msun"], sl])
+            np.divide(erad, mtot, out=out[row["erad_frac"], sl])
+            okb = ok[sl]
+            for j, (q_lo, chi_hi, slots) in enumerate(plan.ranges):
+                inside = okb if j == 0 else range_scratch[:k]
+                kn.in_range(w[kn.W_Q], w[kn.W_X1], w[kn.W_X2], q_lo, chi_hi, inside)
+                n_out = k - int(np.count_nonzero(inside))
+                for slot in slots:
+                    outside_by_slot[slot] += n_out
+                if j:
+                    okb &= inside
+            if not plan.ranges:
+                okb[:] = True
+            return outside_by_slot, n_phi, k
+        finally:
+            scratch.put((work, frac, range_scratch))
+
+    outside_by_slot = np.zeros(kn.N_SLOTS, dtype=np.int64)
     n_phi_drawn = 0
-    for start in range(0, n, block_rows):
-        sl = slice(start, min(start + block_rows, n))
-        k = sl.stop - sl.start
-        a1, a2, c1, c2 = m1[sl], m2[sl], chi1[sl], chi2[sl]
-        t1, t2, p = tilt1[sl], tilt2[sl], phi12[sl]
-        if not _block_is_valid(a1, a2, c1, c2, t1, t2, p):
-            _validate_bbh(inp.source, inp.labels, v)  # raises, naming every bad row
-        missing = np.isnan(p)
-        any_missing = inp.phi12_draws is not None and bool(missing.any())
-        if any_missing:
-            p = np.where(missing, inp.phi12_draws[sl], p)
-        ct1, st1 = _cos_sin32(t1)
-        ct2, st2 = _cos_sin32(t2)
-        # tilts lie in [0, pi]; float32(pi) > pi makes its sine -9e-8: clip to the exact 0
-        np.maximum(st1, 0.0, out=st1)
-        np.maximum(st2, 0.0, out=st2)
-        if any_missing:
-            inplane = (c1 * st1 > 1e-12) & (c2 * st2 > 1e-12)
-            n_phi_drawn += int(np.count_nonzero(missing & inplane))
-        w = work[:, :k]
-        raw = [out[j, sl] if j >= 0 else frac[slot, :k] for slot, j in enumerate(plan.raw_rows)]
-        kn.raw_block(
-            plan.enabled, a1, a2, c1, c2, ct1, st1, ct2, st2, _cos32(p), _cos32(inp.phase[sl]),
-            raw, w,
-        )  # fmt: skip
-        mtot = w[kn.W_MTOT]
-        for f in fits:
-            if f.quantity == "final_mass":
-                mf_col, erad_col = f.columns
-                kn.mass_columns(mtot, raw[f.slot], out[row[mf_col], sl], out[row[erad_col], sl])
-        for lo, hi, stat in plan.stats:
-            kn.mean_spread(out[lo:hi, sl], out[stat, sl], out[stat + 1, sl], out[stat + 2, sl])
-        erad = out[row["erad_msun"], sl]
-        np.subtract(mtot, erad, out=out[row["mf_msun"], sl])
-        np.divide(erad, mtot, out=out[row["erad_frac"], sl])
-        okb = ok[sl]
-        for j, (q_lo, chi_hi, slots) in enumerate(plan.ranges):
-            inside = okb if j == 0 else range_scratch[:k]
-            kn.in_range(w[kn.W_Q], w[kn.W_X1], w[kn.W_X2], q_lo, chi_hi, inside)
-            n_out = k - int(np.count_nonzero(inside))
-            for slot in slots:
-                outside_by_slot[slot] += n_out
-            if j:
-                okb &= inside
-        if not plan.ranges:
-            okb[:] = True
+
+    def collect(result: tuple[NDArray[np.int64], int, int]) -> None:
+        nonlocal n_phi_drawn
+        outside_by_slot[:] += result[0]
+        n_phi_drawn += result[1]
         if progress is not None:
-            progress(k)
+            progress(result[2])
+
+    if n_threads == 1:
+        for start in starts:
+            collect(run_block(start))
+    else:
+        with ThreadPoolExecutor(n_threads, thread_name_prefix="gwdeficit-fits") as pool:
+            futures = [pool.submit(run_block, start) for start in starts]
+            try:
+                for fut in futures:  # in row order: progress and errors as with one thread
+                    collect(fut.result())
+            except BaseException:
+                for fut in futures:
+                    fut.cancel()
+                raise
     cols: dict[str, NDArray[Any]] = dict(zip(plan.names, out, strict=True))
     cols["mf_msun_range"] = cols["erad_msun_range"]
     cols["mf_msun_std"] = cols["erad_msun_std"]
@@ -342,10 +405,11 @@ def _raise_malloc_threshold() -> None:
 
 def _validate_bbh(
     source: str,
-    labels: NDArray[Any],
+    labels: NDArray[Any] | None,
     values: Mapping[str, NDArray[np.float64]],
 ) -> None:
-    """Raise :class:`RemnantInputError` for values the BBH fits cannot take."""
+    """Raise :class:`RemnantInputError` for values the BBH fits cannot take (rows named by
+    ``labels``, or by their 1-based position when None)."""
     with np.errstate(invalid="ignore"):
         checks = [
             ("m1_msun", lambda x: ~(np.isfinite(x) & (x > 0)), "mass not a positive finite number"),
@@ -367,7 +431,8 @@ def _validate_bbh(
         for column, bad_of, reason in checks:
             bad = bad_of(values[column])
             if bad.any():
-                raise RemnantInputError(source, column, reason, labels[bad].tolist())
+                rows = np.flatnonzero(bad) + 1 if labels is None else labels[bad]
+                raise RemnantInputError(source, column, reason, rows.tolist())
 
 
 def _draw_angles(
@@ -424,6 +489,7 @@ def remnant_arrays(
     seed: int | None = 0,
     rng: np.random.Generator | None = None,
     kick_phase: ArrayLike | None = None,
+    threads: int | None = None,
 ) -> RemnantEstimate:
     """Remnant of binary-black-hole mergers from NR fits, on arrays.
 
@@ -433,7 +499,9 @@ def remnant_arrays(
     between the in-plane spins in rad (NaN: unknown, drawn uniformly where it matters).
     ``fits``: names from the registry (default: all). ``kick_phase``: the in-plane spin phase
     at merger in rad (default: drawn uniformly in [0, 2 pi) from ``rng``, or from
-    ``numpy.random.default_rng(seed)`` when no generator is given).
+    ``numpy.random.default_rng(seed)`` when no generator is given). ``threads``: threads for
+    the fits (default :func:`default_threads`: ``GWDEFICIT_THREADS`` or every usable CPU);
+    the values do not depend on it.
 
     Returns a :class:`RemnantEstimate`: ``mf_msun``, ``chif``, ``erad_msun``, ``erad_frac``,
     ``ejected_msun`` (0), ``deficit_msun``, ``vkick_kms``, the ``*_range``/``*_std`` spreads,
@@ -459,8 +527,8 @@ def remnant_arrays(
         raise RemnantInputError("<arrays>", "kick_phase", "not a finite angle", bad.tolist())
     gen = rng if rng is not None else np.random.default_rng(seed)
     phase, draws = _draw_angles(gen, n, bool(np.isnan(values["phi12_rad"]).any()), given)
-    inp = _BbhInput(values, phase, draws, np.arange(1, n + 1), "<arrays>")
-    cols, outside, n_phi_drawn = _bbh_core(inp, chosen)
+    inp = _BbhInput(values, phase, draws, None, "<arrays>")
+    cols, outside, n_phi_drawn = _bbh_core(inp, chosen, threads=threads)
     _warn_outside(n - int(np.count_nonzero(cols["in_fit_range"])), n, outside)
     return RemnantEstimate(
         columns={k: v.reshape(shape) for k, v in cols.items()},
@@ -497,6 +565,7 @@ class Rows:
     source: str
     progress: Callable[[int], None] | None = None
     options: Mapping[str, Any] = field(default_factory=dict)
+    threads: int | None = None
 
 
 @dataclass(frozen=True)
@@ -511,7 +580,9 @@ class BranchResult:
 def _bbh_branch(rows: Rows) -> BranchResult:
     """Binary black holes: every selected fit, default mean and spread."""
     inp = _BbhInput(rows.values, rows.phase, rows.phi12_draws, rows.labels, rows.source)
-    cols, outside, n_phi_drawn = _bbh_core(inp, rows.fits, progress=rows.progress)
+    cols, outside, n_phi_drawn = _bbh_core(
+        inp, rows.fits, progress=rows.progress, threads=rows.threads
+    )
     n = rows.values["m1_msun"].size
     cols["remnant_kind"] = np.full(n, "BH", dtype=object)
     cols["remnant_status"] = np.full(n, STATUS_ESTIMATED, dtype=object)
@@ -601,7 +672,7 @@ def _neutron_star_branch(rows: Rows) -> BranchResult:
             rows.labels[bh_limit],
             rows.source,
         )
-        bbh, outside, n_phi_drawn = _bbh_core(inp, rows.fits)
+        bbh, outside, n_phi_drawn = _bbh_core(inp, rows.fits, threads=rows.threads)
         for name, arr in bbh.items():
             if name == "in_fit_range":
                 cols[name][bh_limit] &= arr
@@ -677,6 +748,7 @@ def compute_remnants(
     inputs: Mapping[str, str] | None = None,
     progress: Callable[[int, int], None] | None = None,
     ns_options: Mapping[str, Any] | None = None,
+    threads: int | None = None,
 ) -> pd.DataFrame:
     """Remnant columns for every row of a canonical catalogue DataFrame.
 
@@ -692,7 +764,8 @@ def compute_remnants(
     (:data:`NS_OPTION_KEYS`: ``ns_radius_km`` used where a tidal deformability is missing,
     ``eos_relation``, ``baryonic_relation``, ``mtov_msun``, ``r16_km``); see
     :func:`gwdeficit.fits.neutron_star.ns_remnant`. Neutron-star rows with neither a tidal
-    deformability nor a radius are not estimated (no silent default). Emits
+    deformability nor a radius are not estimated (no silent default). ``threads``: threads
+    for the black-hole fits (:func:`default_threads`; values do not depend on it). Emits
     :class:`FitRangeWarning` when rows lie outside a calibrated range; raises
     ``SchemaError`` for missing columns and ``BadRowsError`` subclasses for bad rows (named by
     ``input_row`` when present).
@@ -702,6 +775,7 @@ def compute_remnants(
     src = source or "<DataFrame>"
     _check_frame(df, src)
     chosen = select_fits(fits)
+    n_threads = default_threads(threads)
     ns_opts = {k: val for k, val in dict(ns_options or {}).items() if val is not None}
     unknown = sorted(set(ns_opts) - set(NS_OPTION_KEYS))
     if unknown:
@@ -767,6 +841,7 @@ def compute_remnants(
                 source=src,
                 progress=_tick,
                 options=ns_opts,
+                threads=n_threads,
             )
         )
         for name, arr in result.columns.items():

@@ -402,6 +402,7 @@ def stream_remnants(
     progress: Progress | None = None,
     inputs: Mapping[str, str] | None = None,
     ns_options: Mapping[str, Any] | None = None,
+    threads: int | None = None,
 ) -> dict[str, Any]:
     """Remnants of a catalogue (Parquet file or folder) written batch by batch to ``out``.
 
@@ -414,8 +415,9 @@ def stream_remnants(
     has rows outside a neutron-star fit's range, then one for the black-hole fits. Returns the
     summary of :func:`gwdeficit.remnant.summarize_remnants` (exact deficit quantiles) plus
     ``phi12_drawn`` and, when the table holds neutron-star rows, ``neutron_star`` (the
-    ``gwdeficit.neutron_star`` metadata). Raises what ``compute_remnants`` raises for bad rows
-    (named by ``input_row``) and bad options.
+    ``gwdeficit.neutron_star`` metadata). ``threads``: threads for the black-hole fits within
+    a batch (:func:`gwdeficit.remnant.default_threads`; values do not depend on it). Raises
+    what ``compute_remnants`` raises for bad rows (named by ``input_row``) and bad options.
     """
 
     from gwdeficit import workdir as wd
@@ -441,6 +443,7 @@ def stream_remnants(
         dict(inputs),
         ns_options=_ns_options(ns_options),
         has_ns=has_neutron_stars(cat),
+        threads=threads,
     )
 
     def parts() -> Iterator[tuple[pa.Table, _RemnantTally, dict[str, Any]]]:
@@ -517,6 +520,7 @@ class RemnantJob:
     inputs: dict[str, str]
     ns_options: dict[str, Any] = field(default_factory=dict)
     has_ns: bool = False
+    threads: int | None = None  # for the black-hole fits (gwdeficit.remnant.default_threads)
 
     def run(self, table: pa.Table, offset: int) -> tuple[pa.Table, _RemnantTally, dict[str, Any]]:
         """Rows ``offset ..`` of the catalogue -> (remnant rows, their tally, their metadata)."""
@@ -536,6 +540,7 @@ class RemnantJob:
                 source=self.source,
                 inputs=self.inputs,
                 ns_options=self.ns_options,
+                threads=self.threads,
             )
         from gwdeficit.remnant import NS_EXTRA_COLUMNS
 
@@ -1895,11 +1900,13 @@ def remnant_stage(
     show_progress: bool = False,
     inputs: Mapping[str, str] | None = None,
     ns_options: Mapping[str, Any] | None = None,
+    threads: int | None = None,
 ) -> dict[str, Any]:
     """The remnant stage batch by batch on ``engine`` ("local" or "dask"), with a progress bar.
 
-    ``ns_options``: the neutron-star keywords of ``compute_remnants``. Returns the summary of
-    :func:`stream_remnants`.
+    ``ns_options``: the neutron-star keywords of ``compute_remnants``; ``threads``: threads for
+    the black-hole fits per batch (local engine; on Dask each task uses one, as the cluster
+    runs tasks side by side). Returns the summary of :func:`stream_remnants`.
     """
     total = parquet_rows(catalogue)
     with row_progress("remnants", total, show_progress) as advance:
@@ -1927,6 +1934,7 @@ def remnant_stage(
             progress=advance,
             inputs=inputs,
             ns_options=ns_options,
+            threads=threads,
         )
 
 

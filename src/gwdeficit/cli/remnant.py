@@ -100,6 +100,14 @@ def remnant(
             "(default: --ns-radius).",
         ),
     ] = None,
+    threads: Annotated[
+        int | None,
+        typer.Option(
+            "--threads",
+            help="Threads for the black-hole fits (default: the GWDEFICIT_THREADS environment "
+            "variable, else every usable CPU; results do not depend on it). Local engine only.",
+        ),
+    ] = None,
     force: _common.ForceOpt = False,
     as_json: _common.JsonOpt = False,
 ) -> None:
@@ -114,7 +122,7 @@ def remnant(
 
     from gwdeficit import workdir as wd
     from gwdeficit.fits.registry import FitRangeWarning
-    from gwdeficit.remnant import compute_remnants, summarize_remnants
+    from gwdeficit.remnant import compute_remnants, default_threads, summarize_remnants
     from gwdeficit.schema import InputFileError
 
     t0 = time.perf_counter()
@@ -125,6 +133,7 @@ def remnant(
     out = folder / wd.REMNANTS_FILE
     wd.check_writable(out, force, inputs=(path,))
     engine_name = _common.check_engine(engine, scheduler)
+    n_threads = default_threads(threads)  # checks --threads and GWDEFICIT_THREADS up front
     from gwdeficit.stream import parquet_rows
 
     ns_options = {
@@ -138,8 +147,9 @@ def remnant(
     if engine_name == "dask" or parquet_rows(path) > batch_rows:
         # Larger than one batch (or on a cluster): streamed, same results (gwdeficit.stream).
         _streamed(
-            path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0, ns_options
-        )
+            path, out, engine_name, scheduler, seed, batch_rows, force, as_json, t0, ns_options,
+            n_threads,
+        )  # fmt: skip
         return
     df = wd.read_parquet(path)
     digest = wd.file_sha256(path)
@@ -158,6 +168,7 @@ def remnant(
                     inputs={str(path): digest},
                     progress=lambda done, total: bar.update(task, completed=done),
                     ns_options=ns_options,
+                    threads=n_threads,
                 )
         else:
             result = compute_remnants(
@@ -166,6 +177,7 @@ def remnant(
                 source=str(path),
                 inputs={str(path): digest},
                 ns_options=ns_options,
+                threads=n_threads,
             )
     del df
     wd.write_parquet(result, out, result.attrs, force=force, inputs=(path,))
@@ -207,6 +219,7 @@ def _streamed(
     as_json: bool,
     t0: float,
     ns_options: dict[str, Any],
+    threads: int,
 ) -> None:
     """The remnant stage batch by batch (local or Dask engine), then the same summary."""
     import warnings
@@ -226,6 +239,7 @@ def _streamed(
             force=force,
             show_progress=_common.show_progress(as_json),
             ns_options=ns_options,
+            threads=threads,
         )
     ns_meta = summary.pop("neutron_star", None)
     summary.update(input=str(path), output=str(out), seed=seed, seconds=time.perf_counter() - t0)
