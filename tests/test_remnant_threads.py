@@ -90,7 +90,7 @@ def test_default_threads_from_argument_environment_and_cpus(monkeypatch):
     assert default_threads(1) == 1  # the argument wins
     for bad in ("two", "0", "-1"):
         monkeypatch.setenv("GWDEFICIT_THREADS", bad)
-        with pytest.raises(schema.OptionError, match="GWDEFICIT_THREADS|at least 1"):
+        with pytest.raises(schema.OptionError, match=f"GWDEFICIT_THREADS='{bad}'"):
             default_threads()
     with pytest.raises(schema.OptionError, match="at least 1"):
         default_threads(0)

@@ -194,6 +194,8 @@ def default_threads(threads: int | None = None) -> int:
                 raise schema.OptionError(
                     f"GWDEFICIT_THREADS={env!r} is not a whole number of threads"
                 ) from exc
+            if threads < 1:
+                raise schema.OptionError(f"GWDEFICIT_THREADS={env!r}: threads must be at least 1")
         else:
             try:
                 threads = len(os.sched_getaffinity(0))
@@ -232,9 +234,30 @@ def _bbh_core(
     plan = _kernel_plan(fits)
     out = np.empty((len(plan.names), n))
     row = {name: j for j, name in enumerate(plan.names)}
+    stat_of = dict(zip(QUANTITIES, plan.stats, strict=True))
+    # Fused loops for the default set's pairs: the two NR mass fits with their mean (and mf,
+    # E_rad / M of the mean), the two recoil fits with their mean. Same values either way.
+    pair = [f for f in fits if f.quantity == "final_mass" and f.in_default]
+    mass_pair = None
+    if len(pair) == 2:
+        a, b = pair
+        mass_pair = (a.slot, b.slot, *(row[c] for f in pair for c in f.columns))
     mass_rows = [
-        (f.slot, row[f.columns[0]], row[f.columns[1]]) for f in fits if f.quantity == "final_mass"
+        (f.slot, row[f.columns[0]], row[f.columns[1]])
+        for f in fits
+        if f.quantity == "final_mass" and (mass_pair is None or not f.in_default)
     ]
+    kicks = sorted(f.slot for f in fits if f.quantity == "recoil" and f.in_default)
+    kick_pair = kicks == [kn.LOUSTO12, kn.CAMPANELLI07]
+    enabled = plan.enabled.copy()
+    if kick_pair:
+        enabled[kn.LOUSTO12] = enabled[kn.CAMPANELLI07] = False
+    stats = [
+        stat_of[qty]
+        for qty in QUANTITIES
+        if not (qty == "final_mass" and mass_pair) and not (qty == "recoil" and kick_pair)
+    ]
+    mean_rows = [row[c] for c in ("erad_msun", "mf_msun", "erad_frac")]
     ok = np.empty(n, dtype=bool)
     b = min(block_rows, max(n, 1))
     starts = range(0, n, block_rows)
@@ -271,17 +294,29 @@ def _bbh_core(
             w = work[:, :k]
             raw = [out[j, sl] if j >= 0 else frac[slot, :k] for slot, j in enumerate(plan.raw_rows)]
             kn.raw_block(
-                plan.enabled, a1, a2, c1, c2, ct1, st1, ct2, st2, _cos32(p),
-                _cos32(inp.phase[sl]), raw, w,
+                enabled, a1, a2, c1, c2, ct1, st1, ct2, st2, _cos32(p), _cos32(inp.phase[sl]),
+                raw, w,
             )  # fmt: skip
             mtot = w[kn.W_MTOT]
+            if kick_pair:
+                stat = stat_of["recoil"][2]
+                rows_lc = (plan.raw_rows[kn.LOUSTO12], plan.raw_rows[kn.CAMPANELLI07])
+                kn.kick_pair(w, *(out[j, sl] for j in (*rows_lc, stat, stat + 1, stat + 2)))
+            if mass_pair:
+                slot_a, slot_b, *cols = mass_pair
+                stat = stat_of["final_mass"][2]
+                kn.mass_pair(
+                    mtot, raw[slot_a], raw[slot_b],
+                    *(out[j, sl] for j in (*cols, stat, stat + 1, stat + 2, *mean_rows[1:])),
+                )  # fmt: skip
             for slot, mf_row, erad_row in mass_rows:
                 kn.mass_columns(mtot, raw[slot], out[mf_row, sl], out[erad_row, sl])
-            for lo, hi, stat in plan.stats:
+            for lo, hi, stat in stats:
                 kn.mean_spread(out[lo:hi, sl], out[stat, sl], out[stat + 1, sl], out[stat + 2, sl])
-            erad = out[row["erad_msun"], sl]
-            np.subtract(mtot, erad, out=out[row["mf_msun"], sl])
-            np.divide(erad, mtot, out=out[row["erad_frac"], sl])
+            if not mass_pair:
+                erad, mf, frac_mean = (out[j, sl] for j in mean_rows)
+                np.subtract(mtot, erad, out=mf)
+                np.divide(erad, mtot, out=frac_mean)
             okb = ok[sl]
             for j, (q_lo, chi_hi, slots) in enumerate(plan.ranges):
                 inside = okb if j == 0 else range_scratch[:k]

@@ -2,7 +2,7 @@
 
 This is the one implementation of every BBH formula of the registry: the public functions of
 fits.spin, fits.mass and fits.kick (which carry the equations, sources and calibrated ranges
-in their docstrings) and the remnant stage (:func:`bbh_block`) both run the compiled loops
+in their docstrings) and the remnant stage (gwdeficit.remnant) both run the compiled loops
 below through :func:`raw_block`. Each loop is one formula over a block of rows, written with
 arithmetic, sqrt, min and max only, so that the compiler vectorises it (SIMD across rows);
 the cube roots (ISCO closed form, starts of the Newton iterations) come from numpy's
@@ -318,25 +318,46 @@ def bmr12(work, out):
 
 
 @njit(**_JIT)
-def kick(work, hc, hs, k_par, hang_up, out):
-    """Recoil speed in km/s (fits.kick): Lousto et al. 2012 with ``hang_up``, else
-    Campanelli et al. 2007 with v_par = K nu^2/(1+q) |chi1p - q chi2p| cos(phase).
+def _kick_row(work, i, hc, hs, k_par, hang_up):
+    """Recoil speed in km/s of row ``i`` (fits.kick): Lousto et al. 2012 with ``hang_up``,
+    else Campanelli et al. 2007 with v_par = K nu^2/(1+q) |chi1p - q chi2p| cos(phase).
 
     v = |(v_m + v_perp cos xi) e1 + v_perp sin xi e2 + v_par ez|, hc = H cos xi, hs = H sin xi.
     """
+    q, nu = work[W_Q, i], work[W_NU, i]
+    f = nu * nu / (1.0 + q)
+    perp_unit = f * (work[W_CHI1Z, i] - q * work[W_CHI2Z, i])
+    par_unit = f * work[W_DPERP, i] * work[W_CPH, i]
+    if hang_up:
+        st = 2.0 * work[W_SPAR, i]
+        v_par = 16.0 * (L_V11 + st * (L_VA + st * (L_VB + st * L_VC))) * par_unit
+    else:
+        v_par = k_par * par_unit
+    x = KICK_A * (1.0 + KICK_B * nu) * f * (1.0 - q) + hc * perp_unit
+    y = hs * perp_unit
+    return math.sqrt(x * x + y * y + v_par * v_par)
+
+
+@njit(**_JIT)
+def kick(work, hc, hs, k_par, hang_up, out):
+    """One recoil formula over a block (:func:`_kick_row`)."""
     for i in range(out.shape[0]):
-        q, nu = work[W_Q, i], work[W_NU, i]
-        f = nu * nu / (1.0 + q)
-        perp_unit = f * (work[W_CHI1Z, i] - q * work[W_CHI2Z, i])
-        par_unit = f * work[W_DPERP, i] * work[W_CPH, i]
-        if hang_up:
-            st = 2.0 * work[W_SPAR, i]
-            v_par = 16.0 * (L_V11 + st * (L_VA + st * (L_VB + st * L_VC))) * par_unit
-        else:
-            v_par = k_par * par_unit
-        x = KICK_A * (1.0 + KICK_B * nu) * f * (1.0 - q) + hc * perp_unit
-        y = hs * perp_unit
-        out[i] = math.sqrt(x * x + y * y + v_par * v_par)
+        out[i] = _kick_row(work, i, hc, hs, k_par, hang_up)
+
+
+@njit(**_JIT)
+def kick_pair(work, out_l, out_c, mean, rng, std):
+    """Both recoil fits (Lousto et al. 2012, Campanelli et al. 2007) and their mean, max - min
+    and std in one loop (the same values as :func:`kick` twice and :func:`mean_spread`)."""
+    for i in range(out_l.shape[0]):
+        a = _kick_row(work, i, L_HC, L_HS, 0.0, True)
+        b = _kick_row(work, i, C_HC, C_HS, C_K, False)
+        out_l[i] = a
+        out_c[i] = b
+        mean[i] = 0.5 * (a + b)
+        d = abs(a - b)
+        rng[i] = d
+        std[i] = 0.5 * d
 
 
 def isco_cube_roots(work: NDArray[np.float64], plus: bool) -> None:
@@ -464,6 +485,27 @@ def mass_columns(mtot, frac, mf_out, erad_out):
         erad = mtot[i] * frac[i]
         erad_out[i] = erad
         mf_out[i] = mtot[i] - erad
+
+
+@njit(**_JIT)
+def mass_pair(mtot, frac_a, frac_b, mf_a, erad_a, mf_b, erad_b, mean, rng, std, mf, erad_frac):
+    """:func:`mass_columns` for two fits, their mean, max - min and std (:func:`mean_spread`),
+    and the mean's final mass M - erad and E_rad / M, in one loop (the same values)."""
+    for i in range(mtot.shape[0]):
+        m = mtot[i]
+        ea = m * frac_a[i]
+        eb = m * frac_b[i]
+        erad_a[i] = ea
+        mf_a[i] = m - ea
+        erad_b[i] = eb
+        mf_b[i] = m - eb
+        e = 0.5 * (ea + eb)
+        d = abs(ea - eb)
+        mean[i] = e
+        rng[i] = d
+        std[i] = 0.5 * d
+        mf[i] = m - e
+        erad_frac[i] = e / m
 
 
 @njit(**_JIT)
