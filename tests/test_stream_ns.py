@@ -8,13 +8,11 @@ as a multi-file Parquet dataset with several row groups per file; the leading ro
 so the first batches hold no neutron star (their columns must still match the whole table's).
 
 Exactness: a row's values depend only on that row's inputs and its random angles, which the
-streamed engine keys by row position, so every column is bit-identical to the in-memory one,
-with one exception: on BNS rows the inspiral energy ``erad_msun`` (and ``erad_frac``,
-``deficit_msun``, ``mf_msun`` derived from it) comes from a Newton iteration
-(``gwdeficit.fits.bns.x_energy_minimum``) that stops when every row of the array has
-converged, so a row can get one more step, changing the last bit, depending on the other rows
-of its batch (seen: 1 row in 3000, relative 1.9e-16). Those four columns are compared on BNS
-rows to a relative 1e-15 (a few float64 roundings); everything else exactly.
+streamed engine keys by row position, so every column is bit-identical to the in-memory one.
+This includes the BNS inspiral energy, whose Newton iteration
+(``gwdeficit.fits.bns.x_energy_minimum``) stops each row at its own convergence; it once
+stopped when every row of the array had converged, which changed the last bit of 1 BNS row in
+3000 between batchings, and these tests then allowed a relative 1e-15 there.
 """
 
 from __future__ import annotations
@@ -39,8 +37,6 @@ N_ROWS = 6_000
 BBH_HEAD = 1_300  # rows 0..1299 are BBH: the first batches of BATCH rows hold no neutron star
 BBH_TAIL = 800  # and so does the last batch
 BATCH = 700  # several batches, crossing file and row-group boundaries
-ROUNDING_RTOL = 1e-15  # BNS inspiral-energy columns only (module docstring)
-BNS_ROUNDED = ("erad_msun", "erad_frac", "deficit_msun", "mf_msun")
 NO_TIDAL = "not_estimated:no_tidal_deformability_or_radius"
 
 
@@ -92,21 +88,15 @@ def _in_memory(catalogue: Path, seed: int, ns_options: dict) -> tuple[pd.DataFra
 
 
 def _assert_same_remnants(got: pd.DataFrame, ref: pd.DataFrame) -> None:
-    """Column by column: exact, except BNS inspiral-energy columns to float rounding."""
+    """Column by column, bit-identical (NaN where NaN)."""
     assert list(got.columns) == list(ref.columns)
     assert len(got) == len(ref)
-    bns = (ref["kind"].astype(str) == "BNS").to_numpy()
     for col in ref.columns:
         a, b = got[col].to_numpy(), ref[col].to_numpy()
         if b.dtype.kind != "f":
             assert (got[col].astype(str) == ref[col].astype(str)).all(), col
             continue
-        # bit-identical, NaN where NaN, on every row but the BNS ones
-        np.testing.assert_array_equal(a[~bns], b[~bns], err_msg=col)
-        if col in BNS_ROUNDED:
-            np.testing.assert_allclose(a[bns], b[bns], rtol=ROUNDING_RTOL, atol=0, err_msg=col)
-        else:
-            np.testing.assert_array_equal(a[bns], b[bns], err_msg=col)
+        np.testing.assert_array_equal(a, b, err_msg=col)
 
 
 def _assert_same_metadata(got: pd.DataFrame, ref: pd.DataFrame, engine: str) -> None:

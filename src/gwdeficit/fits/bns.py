@@ -78,10 +78,12 @@ def x_energy_minimum(
     """PN parameter x at which :func:`binding_energy_pn` has its minimum (the PN "ISCO").
 
     Solves f(x) = dE/dx / (-M nu / 2) = 1 + 2 e1 x + 3 e2 x^2 + 4 e3 x^3 - 18 kappa_2^T x^5 = 0
-    by Newton iteration from x = 0.5, vectorised. For 0 <= nu <= 1/4 the coefficients e1, e2,
-    e3 are all negative and kappa_2^T >= 0, so f falls from f(0) = 1, is concave on x >= 0, and
-    is negative at x = 0.5: the root is unique, and Newton steps from the right of it approach
-    it monotonically (the tangent of a concave function lies above it).
+    by Newton iteration from x = 0.5, vectorised; each row stops at its own convergence
+    (step <= 1e-14), so its result does not depend on the other rows. For 0 <= nu <= 1/4 the
+    coefficients e1, e2, e3 are all negative and kappa_2^T >= 0, so f falls from f(0) = 1, is
+    concave on x >= 0, and is negative at x = 0.5: the root is unique, and Newton steps from
+    the right of it approach it monotonically (the tangent of a concave function lies above
+    it).
     """
     m1, m2 = (np.asarray(a, dtype=np.float64) for a in (m1, m2))
     mt = m1 + m2
@@ -89,13 +91,17 @@ def x_energy_minimum(
     e1, e2, e3 = _pn_coefficients(nu)
     k = kappa2t(m1, m2, lam1, lam2)
     x = np.full(np.broadcast(e1, k).shape, 0.5)
-    with np.errstate(invalid="ignore"):
+    active = np.ones(x.shape, dtype=bool)
+    with np.errstate(invalid="ignore", divide="ignore"):
         for _ in range(iterations):
             f = 1.0 + x * (2 * e1 + x * (3 * e2 + x * (4 * e3 - 18 * k * x * x)))
             df = 2 * e1 + x * (6 * e2 + x * (12 * e3 - 90 * k * x * x))
-            step = f / df
+            step = np.where(active, f / df, 0.0)
             x = x - step
-            if not np.any(np.abs(step) > 1e-14):
+            # a row stops once its own step is below 1e-14, so its value never depends on
+            # which other rows share the array (batch or block)
+            active &= np.abs(step) > 1e-14
+            if not active.any():
                 break
     return np.where(np.isfinite(k) & np.isfinite(nu), x, np.nan)
 
