@@ -660,24 +660,16 @@ def _merge_ns_meta(
 def _warn_ns_outside(t: _RemnantTally) -> None:
     """The neutron-star fits' range warnings of the in-memory stage, counted over all batches.
 
-    One :class:`FitRangeWarning` per neutron-star kind with rows outside a fit's range, in the
-    words of ``gwdeficit.fits.neutron_star`` (which warns once per kind in memory).
+    One :class:`FitRangeWarning` per neutron-star kind with rows outside a fit's range, the
+    same warning ``gwdeficit.fits.neutron_star`` gives (once per kind) in memory.
     """
-    from gwdeficit.fits.registry import FitRangeWarning
+    from gwdeficit.fits.neutron_star import out_of_range_warning
 
     outside = t.ns_outside()
     for kind in schema.KINDS:
-        counts = {name: n for name, n in outside.get(kind, {}).items() if n}
-        if not counts:
-            continue
-        parts = ", ".join(f"{name} ({n} rows)" for name, n in counts.items())
-        warnings.warn(
-            f"neutron-star rows outside the calibrated range of: {parts}, of "
-            f"{t.ns_rows.get(kind, 0)} rows; the fits are extrapolated there (in_fit_range is "
-            "False for them)",
-            FitRangeWarning,
-            stacklevel=3,
-        )
+        warning = out_of_range_warning(outside.get(kind, {}), t.ns_rows.get(kind, 0))
+        if warning is not None:
+            warnings.warn(warning, stacklevel=3)
 
 
 def _encoded(meta: Mapping[str, Any]) -> dict[bytes, bytes]:

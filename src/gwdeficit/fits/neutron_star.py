@@ -312,19 +312,26 @@ def _join_flags(flags: Mapping[str, NDArray[np.bool_]], shape: tuple[int, ...]) 
     return np.asarray(labels, dtype=str)[inverse.reshape(shape)]
 
 
-def _warn_out_of_range(flags: Mapping[str, NDArray[np.bool_]], n_rows: int) -> None:
-    counts = {name: int(np.count_nonzero(f)) for name, f in flags.items() if f.any()}
-    if not counts:
-        return
+def out_of_range_warning(counts: Mapping[str, int], n_rows: int) -> Warning | None:
+    """The :class:`FitRangeWarning` for ``counts`` (fit name -> rows outside its calibrated
+    range, zeros ignored) among ``n_rows`` neutron-star rows of one kind; None if no row is
+    outside. The streamed engine builds the same warning from counts over all its batches."""
     from gwdeficit.fits.registry import FitRangeWarning
 
-    parts = ", ".join(f"{name} ({n} rows)" for name, n in counts.items())
-    warnings.warn(
+    parts = ", ".join(f"{name} ({n} rows)" for name, n in counts.items() if n)
+    if not parts:
+        return None
+    return FitRangeWarning(
         f"neutron-star rows outside the calibrated range of: {parts}, of {n_rows} rows; the "
-        "fits are extrapolated there (in_fit_range is False for them)",
-        FitRangeWarning,
-        stacklevel=3,
+        "fits are extrapolated there (in_fit_range is False for them)"
     )
+
+
+def _warn_out_of_range(flags: Mapping[str, NDArray[np.bool_]], n_rows: int) -> None:
+    counts = {name: int(np.count_nonzero(f)) for name, f in flags.items()}
+    warning = out_of_range_warning(counts, n_rows)
+    if warning is not None:
+        warnings.warn(warning, stacklevel=3)
 
 
 def _nsbh_rows(
