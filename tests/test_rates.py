@@ -147,8 +147,14 @@ def test_bad_samples_name_file_column_and_rows(tmp_path):
         load_rate_samples(f"{p}:R")
     assert exc.value.rows == [2, 3] and exc.value.column == "R"
     assert str(p) in str(exc.value)
+    # the advice fits the rate stage: there is no --on-bad option (and no rejects file) here
+    assert "--on-bad" not in str(exc.value) and "rate-samples file" in str(exc.value)
     with pytest.raises(InputFileError, match="no such file"):
         load_rate_samples(tmp_path / "missing.csv")
+    z = tmp_path / "zeros.csv"
+    z.write_text("R\n0\n0\n5\n")
+    with pytest.raises(InputFileError, match="median of the rate samples is not positive"):
+        load_rate_samples(z)
 
 
 def test_evolution_and_reference_redshift():

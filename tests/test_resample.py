@@ -268,6 +268,7 @@ def test_errors_name_the_problem():
     with pytest.raises(BadRowsError) as exc:
         bootstrap_means(bad, ["deficit_msun"], 5, np.random.default_rng(0))
     assert exc.value.column == "weight" and exc.value.rows == [8]
+    assert "--on-bad" not in str(exc.value) and "rerun" in str(exc.value)  # no rejects here
     with pytest.raises(OptionError, match="inspiral-volume"):
         bootstrap_means(df, ["deficit_msun"], 5, np.random.default_rng(0), selection="magic")
     with pytest.raises(OptionError, match="catalogue"):

@@ -231,6 +231,7 @@ def test_bad_weight_is_named_by_row(tmp_path, synthetic):
         stream_budget(path, volumes=["mw"], n_draws=10, batch_rows=1_000)
     assert info.value.rows == [int(df["input_row"].iloc[5]), int(df["input_row"].iloc[70])]
     assert info.value.column == "weight"
+    assert "--on-bad" not in str(info.value) and "rerun" in str(info.value)
 
 
 def test_bad_options_are_typed_errors(synthetic):

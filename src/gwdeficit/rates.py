@@ -389,7 +389,10 @@ def load_rate_samples(
     values = pd.to_numeric(df[col], errors="coerce").to_numpy(dtype=np.float64)
     bad = np.flatnonzero(~(np.isfinite(values) & (values >= 0)))
     if bad.size:
-        raise BadRowsError(str(path), col, "not a finite rate >= 0", (bad + 1).tolist())
+        raise BadRowsError(
+            str(path), col, "not a finite rate >= 0", (bad + 1).tolist(),
+            hint="Fix these rows in the rate-samples file.",
+        )  # fmt: skip
     if values.size == 0:
         raise InputFileError(f"{path}: column {col!r} holds no rate samples")
     k = rate_unit_factor(unit)
@@ -397,7 +400,9 @@ def load_rate_samples(
     med = float(np.median(values))
     lo, hi = (float(x) for x in np.quantile(values, [0.05, 0.95]))
     if not med > 0:
-        raise BadRowsError(str(path), col, "median rate is not positive", [], 0)
+        raise InputFileError(
+            f"{path}: column {col!r}: the median of the rate samples is not positive ({med:g})"
+        )
     return RateModel(
         med,
         min(lo, med),

@@ -91,13 +91,8 @@ class RemnantInputError(BadRowsError):
     """Binary-black-hole rows whose values the fits cannot take (masses, spins, angles)."""
 
     def __init__(self, path: str, column: str, reason: str, rows: Sequence[int]) -> None:
-        super().__init__(path, column, reason, rows)
-        shown = ", ".join(str(r) for r in self.rows[:20])
-        more = f" (and {self.n_total - 20} more)" if self.n_total > 20 else ""
-        self.args = (
-            f"{self.path}: column '{column}': {reason} in {self.n_total} row(s): "
-            f"rows {shown}{more}. No remnant was computed; fix these rows in the catalogue.",
-        )
+        hint = "No remnant was computed; fix these rows in the catalogue."
+        super().__init__(path, column, reason, rows, hint=hint)
 
 
 @dataclass(frozen=True, eq=False)

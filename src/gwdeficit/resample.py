@@ -44,6 +44,7 @@ from gwdeficit.schema import (
     ERROR_SOURCES,
     META_FITS,
     PER_FIT_SEPARATOR,
+    REMNANTS_HINT,
     BadRowsError,
     OptionError,
     SchemaError,
@@ -239,7 +240,11 @@ def prepare_population(
     bad = np.flatnonzero(~(np.isfinite(weight_all) & (weight_all >= 0)))
     if bad.size:
         raise BadRowsError(
-            source, "weight", "weight is not a finite number >= 0", _row_numbers(remnants, bad)
+            source,
+            "weight",
+            "weight is not a finite number >= 0",
+            _row_numbers(remnants, bad),
+            hint=REMNANTS_HINT,
         )
     labels_all, codes_all = _factorize_sorted(remnants["event"])
     # Event weight W_e, from the whole table: 1 for several rows, the row weight for one row.
@@ -383,7 +388,11 @@ def prepare_population(
         badm = np.flatnonzero(~(np.isfinite(mc) & (mc > 0)))
         if badm.size:
             raise BadRowsError(
-                source, "m1_msun", "no positive chirp mass", _row_numbers(remnants, idx[badm])
+                source,
+                "m1_msun",
+                "no positive chirp mass",
+                _row_numbers(remnants, idx[badm]),
+                hint=REMNANTS_HINT,
             )
         factor = mc ** (-15.0 / 6.0)
         factor = factor / np.exp(np.mean(np.log(factor)))  # scale-free; avoids under/overflow
@@ -396,6 +405,7 @@ def prepare_population(
                 "vt_gpc3_yr",
                 "sensitive volume-time is not a positive number",
                 _row_numbers(remnants, idx[badv]),
+                hint=REMNANTS_HINT,
             )
         factor = 1.0 / vt
 

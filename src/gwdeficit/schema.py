@@ -154,8 +154,18 @@ class UnitError(SchemaError):
     """A unit string could not be parsed or is not convertible to the canonical unit."""
 
 
+#: The advice of :class:`BadRowsError` at ingest, where bad rows can be set aside.
+INGEST_HINT = "Fix the input, or pass --on-bad skip to write such rows to a rejects file."
+#: ... and at the stages that read the remnants table (weights, masses, sensitive volume).
+REMNANTS_HINT = "Fix these rows in the input table and rerun the stages from ingest."
+
+
 class BadRowsError(GwdeficitError):
-    """Rows failed validation. Carries the file, the reason and the 1-based row numbers."""
+    """Rows failed validation. Carries the file, the reason and the 1-based row numbers.
+
+    ``hint`` ends the message with what the user can do (ingest: :data:`INGEST_HINT`; later
+    stages, which have no rejects file, say which table to fix).
+    """
 
     def __init__(
         self,
@@ -164,18 +174,19 @@ class BadRowsError(GwdeficitError):
         reason: str,
         rows: Sequence[int],
         n_total: int | None = None,
+        hint: str = "Fix these rows in the input.",
     ) -> None:
         self.path = str(path)
         self.column = column
         self.reason = reason
         self.rows = [int(r) for r in rows]
         self.n_total = len(self.rows) if n_total is None else int(n_total)
+        self.hint = hint
         shown = ", ".join(str(r) for r in self.rows[:20])
         more = f" (and {self.n_total - 20} more)" if self.n_total > 20 else ""
         super().__init__(
             f"{self.path}: column '{column}': {reason} in {self.n_total} row(s): "
-            f"rows {shown}{more}. Fix the input, or pass --on-bad skip to write such rows "
-            "to a rejects file."
+            f"rows {shown}{more}. {hint}"
         )
 
 

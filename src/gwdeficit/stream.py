@@ -974,7 +974,11 @@ def tally_part(
     bad = np.flatnonzero(~(np.isfinite(w) & (w >= 0)))
     if bad.size:
         raise schema.BadRowsError(
-            cfg.source, "weight", "weight is not a finite number >= 0", _row_numbers(df, bad)
+            cfg.source,
+            "weight",
+            "weight is not a finite number >= 0",
+            _row_numbers(df, bad),
+            hint=schema.REMNANTS_HINT,
         )
     kind = df["kind"].astype(str).to_numpy(dtype=object)
     unknown = sorted(set(np.unique(kind)) - set(schema.KINDS))
@@ -1047,7 +1051,11 @@ def rows_part(
             bad = np.flatnonzero(~np.isfinite(lf))
             if bad.size:
                 raise schema.BadRowsError(
-                    cfg.source, "m1_msun", "no positive chirp mass", _row_numbers(df, idx[bad])
+                    cfg.source,
+                    "m1_msun",
+                    "no positive chirp mass",
+                    _row_numbers(df, idx[bad]),
+                    hint=schema.REMNANTS_HINT,
                 )
             ws = w[idx] * np.exp(lf - pop.log_factor_mean)
         else:
@@ -1059,6 +1067,7 @@ def rows_part(
                     "vt_gpc3_yr",
                     "sensitive volume-time is not a positive number",
                     _row_numbers(df, idx[bad]),
+                    hint=schema.REMNANTS_HINT,
                 )
             ws = w[idx] / vt
         g = gid[idx]

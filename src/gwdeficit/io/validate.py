@@ -29,6 +29,7 @@ from gwdeficit.io.aliases import FIELDS, ColumnPlan
 from gwdeficit.io.formats import DEFAULT_BATCH_ROWS
 from gwdeficit.schema import (
     CATALOGUE_COLUMNS,
+    INGEST_HINT,
     KINDS,
     SPIN_ASSUMPTIONS,
     BadRowsError,
@@ -448,7 +449,9 @@ class _Batch:
             return
         if self.c.options.on_bad == "error":
             bad = self.rows[new]
-            raise BadRowsError(self.c.path, column, reason, bad[:20], n_total=int(bad.size))
+            raise BadRowsError(
+                self.c.path, column, reason, bad[:20], n_total=int(bad.size), hint=INGEST_HINT
+            )
         self.code[new] = self.c.reason_code(f"column {column!r}: {reason}")
 
     @property
