@@ -122,3 +122,6 @@ def test_cli_threads_option(workdir, monkeypatch):
     monkeypatch.setenv("GWDEFICIT_THREADS", "many")
     res = runner.invoke(app, ["remnant", "--force"])
     assert res.exit_code == 2 and "GWDEFICIT_THREADS" in res.output
+    monkeypatch.delenv("GWDEFICIT_THREADS")
+    res = runner.invoke(app, ["remnant", "--force", "--engine", "dask", "--threads", "2"])
+    assert res.exit_code == 2 and "--threads" in res.output and "Dask" in res.output

@@ -123,7 +123,7 @@ def remnant(
     from gwdeficit import workdir as wd
     from gwdeficit.fits.registry import FitRangeWarning
     from gwdeficit.remnant import compute_remnants, default_threads, summarize_remnants
-    from gwdeficit.schema import InputFileError
+    from gwdeficit.schema import InputFileError, OptionError
 
     t0 = time.perf_counter()
     folder = wd.resolve_workdir(workdir)
@@ -133,6 +133,11 @@ def remnant(
     out = folder / wd.REMNANTS_FILE
     wd.check_writable(out, force, inputs=(path,))
     engine_name = _common.check_engine(engine, scheduler)
+    if threads is not None and engine_name == "dask":
+        raise OptionError(
+            "--threads sets the local engine's threads; on Dask each task runs one fits "
+            "thread and the cluster's workers set the parallelism"
+        )
     n_threads = default_threads(threads)  # checks --threads and GWDEFICIT_THREADS up front
     from gwdeficit.stream import parquet_rows
 
