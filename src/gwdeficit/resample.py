@@ -638,6 +638,7 @@ def run_bootstrap(
     }
     unit = bool(np.all(pop.event_weight == 1.0) and np.all(pop.row_factor == 1.0))
     idx_type = np.int32 if n_ev < 2**31 - 1 else np.int64
+    times_buf: NDArray[np.float64] | None = None  # (draws of a chunk, events) counts
 
     for b0 in range(0, n_draws, chunk):
         m = min(chunk, n_draws - b0)
@@ -693,7 +694,9 @@ def run_bootstrap(
                 # sum over drawn events = (times drawn) . (event totals): one matrix product
                 # gives every fit alternative at once
                 if drawn is None:
-                    times = np.empty((m, n_ev))
+                    if times_buf is None:  # one buffer for every chunk: fresh pages are slow
+                        times_buf = np.empty((chunk, n_ev))
+                    times = times_buf[:m]
                     for i in range(m):  # per draw of the chunk: bins stay cache-sized
                         times[i] = np.bincount(ev_cat[i], minlength=n_ev)
                     drawn = times @ w_all
