@@ -129,11 +129,30 @@ def _factorize_sorted(labels: Any) -> tuple[NDArray[Any], NDArray[np.int64]]:
     import pandas as pd
 
     codes, uniq = pd.factorize(labels, sort=False, use_na_sentinel=False)
-    uniq = np.asarray([str(x) for x in uniq], dtype=object)
+    if _is_text_without_na(uniq):  # e.g. Arrow strings read from Parquet: convert at once
+        uniq = np.asarray(uniq.to_numpy(dtype=object), dtype=object)
+    else:
+        uniq = np.asarray([str(x) for x in uniq], dtype=object)
     order = np.argsort(uniq, kind="stable")
     rank = np.empty_like(order)
     rank[order] = np.arange(order.size)
     return uniq[order], rank[codes].astype(np.int64)
+
+
+def _is_text_without_na(values: Any) -> bool:
+    """True for a pandas string (or Arrow string) array without missing values."""
+    import pandas as pd
+
+    dtype = getattr(values, "dtype", None)
+    if isinstance(dtype, pd.ArrowDtype):
+        import pyarrow as pa
+
+        text = pa.types.is_string(dtype.pyarrow_dtype) or pa.types.is_large_string(
+            dtype.pyarrow_dtype
+        )
+    else:
+        text = isinstance(dtype, pd.StringDtype)
+    return bool(text) and not bool(pd.isna(values).any())
 
 
 def _indicator(x: NDArray[np.float64], threshold: float) -> NDArray[np.float64]:
