@@ -74,3 +74,73 @@ def test_stale_temporaries_removed_on_next_write(tmp_path):
     stale.write_text("junk")
     write_parquet(pd.DataFrame({"a": [1.0]}), tmp_path / "t.parquet", {})
     assert not stale.exists()
+
+
+class _RecordingWriter:
+    """Stands in for a ParquetWriter: records tables, fails on request, slow on request."""
+
+    def __init__(self, fail_on=None, delay=0.0):
+        self.tables, self.closed, self.fail_on, self.delay = [], False, fail_on, delay
+
+    def write_table(self, table):
+        import time
+
+        time.sleep(self.delay)
+        if table == self.fail_on:
+            raise OSError("disk full")
+        self.tables.append(table)
+
+    def close(self):
+        self.closed = True
+
+
+def test_write_behind_keeps_order_and_round_trips_through_parquet(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from gwdeficit.workdir import WriteBehind
+
+    parts = [pa.table({"i": pa.array(range(k * 1000, (k + 1) * 1000))}) for k in range(7)]
+    writer = WriteBehind(pq.ParquetWriter(tmp_path / "t.parquet", parts[0].schema))
+    try:
+        for part in parts:
+            writer.write(part)
+        writer.wait()
+        writer.writer.add_key_value_metadata({"k": "v"})
+    finally:
+        writer.close()
+    back = pq.read_table(tmp_path / "t.parquet")
+    assert back["i"].to_pylist() == list(range(7000))
+    assert pq.read_metadata(tmp_path / "t.parquet").metadata[b"k"] == b"v"
+
+
+def test_write_behind_raises_a_write_error_on_the_next_call_and_still_closes():
+    from gwdeficit.workdir import WriteBehind
+
+    fake = _RecordingWriter(fail_on="b")
+    writer = WriteBehind(fake)
+    writer.write("a")
+    writer.write("b")
+    with pytest.raises(OSError, match="disk full"):
+        writer.write("c")  # waits for "b", which failed
+    writer.close()
+    assert fake.tables == ["a"] and fake.closed
+
+
+def test_write_behind_close_waits_for_the_pending_write_and_keeps_the_first_error():
+    from gwdeficit.workdir import WriteBehind
+
+    fake = _RecordingWriter(fail_on="slow", delay=0.2)
+    writer = WriteBehind(fake)
+    with pytest.raises(KeyError):  # an error of the stage itself, while a write is pending
+        try:
+            writer.write("slow")
+            raise KeyError("stage failed")
+        finally:
+            writer.close()  # does not replace the KeyError with the write's OSError
+    assert fake.closed and fake.tables == []
+    ok = _RecordingWriter(delay=0.2)
+    behind = WriteBehind(ok)
+    behind.write("x")
+    behind.close()  # the pending write finishes before the writer is closed
+    assert ok.tables == ["x"] and ok.closed

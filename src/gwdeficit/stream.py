@@ -310,7 +310,8 @@ class _RemnantTally:
             for k, v in labels.items():
                 mine[k] = mine.get(k, 0) + v
 
-    def add(self, res: pd.DataFrame) -> None:
+    def add(self, res: pd.DataFrame, attrs: Mapping[str, Any]) -> None:
+        """Count one part: its remnant rows ``res`` and the stage metadata ``attrs`` of them."""
         from gwdeficit.remnant import STATUS_ESTIMATED
 
         self.rows += len(res)
@@ -321,10 +322,10 @@ class _RemnantTally:
         self.estimated += int(est.sum())
         self.outside += int((est & ~res["in_fit_range"].to_numpy(dtype=bool)).sum())
         self.deficit_sum += float(res["deficit_msun"].to_numpy(np.float64)[est].sum())
-        draws = res.attrs.get(schema.META_REMNANT_DRAWS, {})
+        draws = attrs.get(schema.META_REMNANT_DRAWS, {})
         self.bbh += int(draws.get("kick_phase", {}).get("rows", 0))
         self.phi12_drawn += int(draws.get("phi12", {}).get("rows", 0))
-        for meta in res.attrs.get(schema.META_FITS, []):
+        for meta in attrs.get(schema.META_FITS, []):
             name = meta["name"]
             self.outside_by_fit[name] = self.outside_by_fit.get(name, 0) + int(
                 meta.get("n_outside_range", 0)
@@ -544,6 +545,10 @@ class RemnantJob:
             )
         from gwdeficit.remnant import NS_EXTRA_COLUMNS
 
+        # pandas deep-copies attrs into every column taken from ``res`` (from_pandas takes
+        # each one): keep the stage metadata aside and the frame without it
+        attrs = dict(res.attrs)
+        res.attrs = {}
         present = [c for c in NS_EXTRA_COLUMNS if c in res.columns]
         if present and not self.has_ns:
             raise RuntimeError("a batch holds neutron-star rows that the pre-pass did not see")
@@ -551,16 +556,14 @@ class RemnantJob:
             unknown = [c for c in NS_EXTRA_COLUMNS if c not in _NS_COLUMN_FILL]
             if unknown:
                 raise RuntimeError(f"no black-hole value known for column(s) {unknown}")
-            attrs = dict(res.attrs)
             res = res.assign(**{c: _NS_COLUMN_FILL[c] for c in NS_EXTRA_COLUMNS})
-            res.attrs = attrs
         tally = _RemnantTally()
-        tally.add(res)
+        tally.add(res, attrs)
         new = [c for c in res.columns if c not in df.columns]
         extra = pa.Table.from_pandas(res[new], preserve_index=False)
         for name in new:
             table = table.append_column(name, extra.column(name))
-        return table.replace_schema_metadata(None), tally, dict(res.attrs)
+        return table.replace_schema_metadata(None), tally, attrs
 
 
 def write_remnants(
@@ -584,7 +587,7 @@ def write_remnants(
     ns_meta: dict[str, Any] | None = None
     out = Path(out)
     with wd.atomic_path(out, force=force, inputs=(cat,)) as tmp:
-        writer = None
+        writer = None  # written behind: the next part is computed while one is written
         try:
             for result, part, attrs in parts:
                 tally.merge(part)
@@ -592,16 +595,18 @@ def write_remnants(
                 ns_meta = _merge_ns_meta(ns_meta, attrs.get(schema.META_NEUTRON_STAR))
                 if writer is None:
                     labels = [c for c in _LABEL_COLUMNS if c in result.column_names]
-                    writer = pq.ParquetWriter(
-                        tmp,
-                        result.schema,
-                        compression="zstd",
-                        use_dictionary=labels,
-                        store_schema=False,
+                    writer = wd.WriteBehind(
+                        pq.ParquetWriter(
+                            tmp,
+                            result.schema,
+                            compression="zstd",
+                            use_dictionary=labels,
+                            store_schema=False,
+                        )
                     )
-                elif result.schema != writer.schema:
-                    result = result.cast(writer.schema)
-                writer.write_table(result)
+                elif result.schema != writer.writer.schema:
+                    result = result.cast(writer.writer.schema)
+                writer.write(result)
                 if progress is not None:
                     progress(result.num_rows)
             if writer is None:  # an empty catalogue: still a valid, empty remnants table
@@ -609,10 +614,10 @@ def write_remnants(
 
                 empty = ds.dataset(cat, format="parquet").schema.empty_table()
                 result, part, last_attrs = job.run(empty.replace_schema_metadata(None), 0)
-                writer = pq.ParquetWriter(
-                    tmp, result.schema, compression="zstd", store_schema=False
+                writer = wd.WriteBehind(
+                    pq.ParquetWriter(tmp, result.schema, compression="zstd", store_schema=False)
                 )
-                writer.write_table(result)
+                writer.write(result)
             attrs = _remnant_metadata(
                 last_attrs,
                 job.meta_in,
@@ -625,7 +630,8 @@ def write_remnants(
                 ns_meta=ns_meta,
                 ns_options=job.ns_options,
             )
-            writer.add_key_value_metadata(_encoded(attrs))
+            writer.wait()
+            writer.writer.add_key_value_metadata(_encoded(attrs))
         finally:
             if writer is not None:
                 writer.close()

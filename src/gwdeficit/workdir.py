@@ -196,6 +196,49 @@ def write_parquet(
     return Path(out)
 
 
+class WriteBehind:
+    """Batches written to a ``pyarrow.parquet.ParquetWriter`` on one background thread.
+
+    Tables are written in the order given, with at most one write pending: pyarrow encodes
+    and compresses without holding the GIL, so a stage computes its next batch while the
+    previous one is written (at the cost of one more batch in memory). An error of a write is
+    raised by the next :meth:`write` or :meth:`wait`. Call :meth:`wait` before touching the
+    writer (metadata) on the success path; :meth:`close` (always, e.g. in ``finally``) waits
+    for a pending write without raising its error, so that an error already on its way out
+    is the one reported, then closes the writer.
+    """
+
+    def __init__(self, writer: Any) -> None:
+        from concurrent.futures import ThreadPoolExecutor
+
+        self.writer = writer
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="gwdeficit-write")
+        self._pending: Any = None
+
+    def write(self, table: pa.Table) -> None:
+        """Queue ``table`` after waiting for the previous write (which may raise)."""
+        self.wait()
+        self._pending = self._pool.submit(self.writer.write_table, table)
+
+    def wait(self) -> None:
+        """Wait for the pending write; raise its error, if any."""
+        pending, self._pending = self._pending, None
+        if pending is not None:
+            pending.result()
+
+    def close(self) -> None:
+        """Wait for a pending write (its error not raised), stop the thread, close the writer."""
+        import concurrent.futures as cf
+
+        pending, self._pending = self._pending, None
+        try:
+            if pending is not None:
+                cf.wait([pending])
+            self._pool.shutdown(wait=True)
+        finally:
+            self.writer.close()
+
+
 def write_text(
     text: str,
     out: str | os.PathLike[str],

@@ -307,6 +307,7 @@ def ingest(
     from gwdeficit.workdir import (
         CATALOGUE_FILE,
         REJECTS_FILE,
+        WriteBehind,
         atomic_path,
         resolve_workdir,
         table_from_frame,
@@ -326,15 +327,17 @@ def ingest(
         labels = ["kind", "spin_assumption"]
         if stream.plan.has("event") or opts.event is not None:
             labels.append("event")
-        writer = pq.ParquetWriter(
-            tmp, stream.schema, compression="zstd", use_dictionary=labels, store_schema=False
+        writer = WriteBehind(  # the next batch is parsed while one is written
+            pq.ParquetWriter(
+                tmp, stream.schema, compression="zstd", use_dictionary=labels, store_schema=False
+            )
         )
         header = True
         try:
             with open(rej_tmp, "w", encoding="utf-8", newline="") as fh:
                 for batch in stream:
                     if batch.accepted.num_rows:
-                        writer.write_table(batch.accepted)
+                        writer.write(batch.accepted)
                     if batch.rejected is not None:
                         batch.rejected.to_csv(fh, header=header, index=False)
                         header = False
@@ -346,7 +349,8 @@ def ingest(
             import pandas as pd
 
             encoded = table_from_frame(pd.DataFrame(), meta).schema.metadata or {}
-            writer.add_key_value_metadata(
+            writer.wait()
+            writer.writer.add_key_value_metadata(
                 {k: v for k, v in encoded.items() if k.startswith(b"gwdeficit.")}
             )
         finally:
