@@ -23,7 +23,7 @@ from gwdeficit import workdir as wd
 from gwdeficit.budget import compute_budget
 from gwdeficit.io import IngestOptions, ingest
 from gwdeficit.remnant import compute_remnants, summarize_remnants
-from gwdeficit.schema import BadRowsError, OptionError
+from gwdeficit.schema import BadRowsError, OptionError, SchemaError
 from gwdeficit.stream import (
     KEY_BLOCK_ROWS,
     _row_groups,
@@ -232,6 +232,16 @@ def test_bad_weight_is_named_by_row(tmp_path, synthetic):
     assert info.value.rows == [int(df["input_row"].iloc[5]), int(df["input_row"].iloc[70])]
     assert info.value.column == "weight"
     assert "--on-bad" not in str(info.value) and "rerun" in str(info.value)
+
+
+def test_unknown_kind_is_a_schema_error_in_both_modes(tmp_path, synthetic):
+    df = synthetic["df"].copy()
+    df["kind"] = df["kind"].astype(object)
+    df.loc[df.index[[3, 4000]], "kind"] = "XYZ"
+    path = wd.write_parquet(df, tmp_path / "bad-kind.parquet", df.attrs)
+    for mode in ("rows", "events"):
+        with pytest.raises(SchemaError, match="kind\\(s\\) 'XYZ' not one of"):
+            stream_budget(path, volumes=["mw"], n_draws=10, batch_rows=1_000, mode=mode)
 
 
 def test_bad_options_are_typed_errors(synthetic):

@@ -956,7 +956,8 @@ def _is_row_labelled(df: pd.DataFrame) -> bool:
 
     rows = pa.array(df["input_row"].to_numpy(np.int64))
     expect = pc.binary_join_element_wise("row", pc.cast(rows, pa.string()), "")
-    got = pa.array(df["event"].astype(str).to_numpy(dtype=object), type=pa.string())
+    # the labels as Arrow strings (no Python str per row)
+    got = pc.cast(pa.array(df["event"].astype(str)), pa.string())
     return bool(pc.all(pc.equal(got, expect)).as_py())
 
 
@@ -986,8 +987,10 @@ def tally_part(
             _row_numbers(df, bad),
             hint=schema.REMNANTS_HINT,
         )
-    kind = df["kind"].astype(str).to_numpy(dtype=object)
-    unknown = sorted(set(np.unique(kind)) - set(schema.KINDS))
+    # kinds as codes into the labels found (hashing Arrow strings, not sorting Python ones)
+    kind_code, kind_found = pd.factorize(df["kind"].astype(str))
+    kind_found = [str(k) for k in kind_found]
+    unknown = sorted(set(kind_found) - set(schema.KINDS))
     if unknown:
         raise SchemaError(
             f"{cfg.source}: kind(s) {', '.join(map(repr, unknown))} not one of "
@@ -1003,7 +1006,7 @@ def tally_part(
         "used_zero": (used & (w == 0)).astype(np.int64),
     }
     for k in schema.KINDS:
-        is_k = kind == k
+        is_k = kind_code == kind_found.index(k) if k in kind_found else np.zeros(w.size, bool)
         cols[f"w:{k}"] = np.where(is_k, w, 0.0)
         cols[f"n:{k}"] = is_k.astype(np.int64)
     for name, col in cfg.alt_columns.items():
@@ -1022,8 +1025,14 @@ def tally_part(
     if not used.all():
         dummies = pd.get_dummies(status.where(~used), prefix="st", prefix_sep="|", dtype=np.int64)
         frame = pd.concat([frame, dummies.set_axis(frame.index)], axis=1)
-    key = df["kind"].astype(str) if rows_mode else df["event"].astype(str)
-    return frame.groupby(key.to_numpy(), sort=False).sum(), labelled
+    # grouped by integer codes, labelled after (same rows, order and sums as by the labels)
+    if rows_mode:
+        code, found = kind_code, np.asarray(kind_found, dtype=object)
+    else:
+        code, uniques = pd.factorize(df["event"].astype(str))
+        found = np.asarray([str(e) for e in uniques], dtype=object)
+    sums = frame.groupby(code, sort=False).sum()
+    return sums.set_axis(found[sums.index.to_numpy()]), labelled
 
 
 def rows_part(
