@@ -821,9 +821,18 @@ def compute_remnants(
             f"valid: {', '.join(NS_OPTION_KEYS)}"
         )
     n = len(df)
-    kinds = df["kind"].astype(str).to_numpy(dtype=object)
+    import pandas as pd
+
+    # kinds as integer codes into the labels found (hashing, not comparing Python strings)
+    kind_code, kind_found = pd.factorize(df["kind"].astype(str))
+    found = [str(k) for k in kind_found]
+    known = np.array([k in KINDS for k in found] + [False])  # code -1 (missing) -> False
+
+    def is_kind(kind: str) -> NDArray[np.bool_]:
+        return kind_code == found.index(kind) if kind in found else np.zeros(n, dtype=bool)
+
     labels = df["input_row"].to_numpy() if "input_row" in df.columns else np.arange(1, n + 1)
-    bad_kind = ~np.isin(kinds, KINDS)
+    bad_kind = ~known[kind_code]
     if bad_kind.any():
         raise RemnantInputError(
             src, "kind", f"kind not one of {', '.join(KINDS)}", labels[bad_kind].tolist()
@@ -838,9 +847,9 @@ def compute_remnants(
                 "'gwdeficit ingest'"
             ) from exc
     gen = rng if rng is not None else np.random.default_rng(seed)
-    is_bbh = kinds == "BBH"
+    is_bbh = is_kind("BBH")
     # Rows that may meet the black-hole fits: BBH, and NSBH in their no-disruption limit.
-    bh_like = is_bbh | (kinds == "NSBH")
+    bh_like = is_bbh | is_kind("NSBH")
     phase, draws = _draw_angles(gen, n, bool(np.isnan(values["phi12_rad"][bh_like]).any()), None)
     has_ns = bool(np.any(~is_bbh))
     n_phi_drawn = 0
@@ -852,28 +861,37 @@ def compute_remnants(
         if progress is not None:
             progress(done[0], n)
 
-    out_cols: dict[str, NDArray[Any]] = {name: np.full(n, np.nan) for name in _output_names(chosen)}
-    out_cols["in_fit_range"] = np.zeros(n, dtype=bool)
-    out_cols["remnant_kind"] = np.full(n, "", dtype=object)
-    out_cols["remnant_status"] = np.full(n, "", dtype=object)
+    # Output columns and what a row no branch fills holds (NaN / False / ""); allocated when a
+    # branch fills part of one, taken as they are when one branch has every row.
+    fill: dict[str, Any] = {name: np.nan for name in _output_names(chosen)}
+    fill.update(in_fit_range=False, remnant_kind="", remnant_status="")
     if has_ns:
-        out_cols["ns_disrupted"] = np.zeros(n, dtype=bool)
-        out_cols["ns_erad_lower_bound"] = np.zeros(n, dtype=bool)
-        for name in ("ns_erad_method", "ns_tidal_source", "ns_out_of_range"):
-            out_cols[name] = np.full(n, "", dtype=object)
+        fill.update(ns_disrupted=False, ns_erad_lower_bound=False)
+        fill.update(ns_erad_method="", ns_tidal_source="", ns_out_of_range="")
+
+    def dtype_of(name: str) -> type:
+        value = fill[name]
+        return bool if isinstance(value, bool) else object if isinstance(value, str) else float
+
+    def blank(name: str) -> NDArray[Any]:
+        return np.full(n, fill[name], dtype=dtype_of(name))
+
+    out_cols: dict[str, NDArray[Any]] = {}
     outside = {f.name: 0 for f in chosen}
     for kind, branch in KIND_BRANCHES.items():
-        mask = kinds == kind
+        mask = is_kind(kind)
         if not mask.any():
             continue
+        whole = bool(mask.all())
+        sel = slice(None) if whole else mask  # a[:] is a view, a[mask] a copy
         result = branch(
             Rows(
                 frame=df,
                 mask=mask,
-                values={k: v[mask] for k, v in values.items()},
-                phase=phase[mask],
-                phi12_draws=None if draws is None else draws[mask],
-                labels=labels[mask],
+                values={k: v[sel] for k, v in values.items()},
+                phase=phase[sel],
+                phi12_draws=None if draws is None else draws[sel],
+                labels=labels[sel],
                 fits=chosen,
                 source=src,
                 progress=_tick,
@@ -882,16 +900,20 @@ def compute_remnants(
             )
         )
         for name, arr in result.columns.items():
-            out_cols[name][mask] = arr
+            if whole:  # same dtype as the blank column would have
+                out_cols[name] = np.asarray(arr, dtype=dtype_of(name))
+            else:
+                out_cols.setdefault(name, blank(name))[mask] = arr
         for name, k in result.n_outside_range.items():
             outside[name] = outside.get(name, 0) + k
         n_phi_drawn += result.n_phi12_drawn
 
-    import pandas as pd
-
     order = [*_REMNANT_NAMES, *(c for f in chosen for c in f.columns)]
     if has_ns:
         order += list(NS_EXTRA_COLUMNS)
+    for name in order:
+        if name not in out_cols:
+            out_cols[name] = blank(name)
     new = pd.DataFrame({name: out_cols[name] for name in order}, index=df.index)
     out = pd.concat([df, new], axis=1)
     estimated = out_cols["remnant_status"] == STATUS_ESTIMATED
