@@ -740,6 +740,36 @@ KIND_BRANCHES: dict[str, Callable[[Rows], BranchResult]] = {
 }
 
 
+@dataclass(frozen=True, eq=False)
+class KindCodes:
+    """A ``kind`` column as integer codes: ``codes[i]`` indexes ``found`` (-1: missing).
+
+    Built by hashing the labels once (``pd.factorize``), so that masks per kind are integer
+    comparisons rather than comparisons of Python strings row by row.
+    """
+
+    codes: NDArray[np.intp]
+    found: list[str]
+
+    @classmethod
+    def of(cls, kind: pd.Series) -> KindCodes:
+        import pandas as pd
+
+        codes, uniques = pd.factorize(kind.astype(str))
+        return cls(codes, [str(k) for k in uniques])
+
+    def mask(self, kind: str) -> NDArray[np.bool_]:
+        """Rows of ``kind``."""
+        if kind not in self.found:
+            return np.zeros(self.codes.size, dtype=bool)
+        return self.codes == self.found.index(kind)
+
+    def unknown(self) -> NDArray[np.bool_]:
+        """Rows whose kind is missing or not one of ``schema.KINDS``."""
+        known = np.array([k in KINDS for k in self.found] + [False])  # code -1 -> False
+        return ~known[self.codes]
+
+
 def _check_frame(df: pd.DataFrame, source: str) -> None:
     missing = [c for c in (*_INPUT_COLUMNS, "kind") if c not in df.columns]
     if missing:
@@ -823,16 +853,9 @@ def compute_remnants(
     n = len(df)
     import pandas as pd
 
-    # kinds as integer codes into the labels found (hashing, not comparing Python strings)
-    kind_code, kind_found = pd.factorize(df["kind"].astype(str))
-    found = [str(k) for k in kind_found]
-    known = np.array([k in KINDS for k in found] + [False])  # code -1 (missing) -> False
-
-    def is_kind(kind: str) -> NDArray[np.bool_]:
-        return kind_code == found.index(kind) if kind in found else np.zeros(n, dtype=bool)
-
+    kinds = KindCodes.of(df["kind"])
     labels = df["input_row"].to_numpy() if "input_row" in df.columns else np.arange(1, n + 1)
-    bad_kind = ~known[kind_code]
+    bad_kind = kinds.unknown()
     if bad_kind.any():
         raise RemnantInputError(
             src, "kind", f"kind not one of {', '.join(KINDS)}", labels[bad_kind].tolist()
@@ -847,9 +870,9 @@ def compute_remnants(
                 "'gwdeficit ingest'"
             ) from exc
     gen = rng if rng is not None else np.random.default_rng(seed)
-    is_bbh = is_kind("BBH")
+    is_bbh = kinds.mask("BBH")
     # Rows that may meet the black-hole fits: BBH, and NSBH in their no-disruption limit.
-    bh_like = is_bbh | is_kind("NSBH")
+    bh_like = is_bbh | kinds.mask("NSBH")
     phase, draws = _draw_angles(gen, n, bool(np.isnan(values["phi12_rad"][bh_like]).any()), None)
     has_ns = bool(np.any(~is_bbh))
     n_phi_drawn = 0
@@ -879,7 +902,7 @@ def compute_remnants(
     out_cols: dict[str, NDArray[Any]] = {}
     outside = {f.name: 0 for f in chosen}
     for kind, branch in KIND_BRANCHES.items():
-        mask = is_kind(kind)
+        mask = kinds.mask(kind)
         if not mask.any():
             continue
         whole = bool(mask.all())

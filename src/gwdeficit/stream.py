@@ -971,6 +971,7 @@ def tally_part(
     """
     import pandas as pd
 
+    from gwdeficit.remnant import KindCodes
     from gwdeficit.resample import _row_numbers
 
     df = table.to_pandas()
@@ -987,10 +988,8 @@ def tally_part(
             _row_numbers(df, bad),
             hint=schema.REMNANTS_HINT,
         )
-    # kinds as codes into the labels found (hashing Arrow strings, not sorting Python ones)
-    kind_code, kind_found = pd.factorize(df["kind"].astype(str))
-    kind_found = [str(k) for k in kind_found]
-    unknown = sorted(set(kind_found) - set(schema.KINDS))
+    kinds = KindCodes.of(df["kind"])
+    unknown = sorted(set(kinds.found) - set(schema.KINDS))
     if unknown:
         raise SchemaError(
             f"{cfg.source}: kind(s) {', '.join(map(repr, unknown))} not one of "
@@ -1006,7 +1005,7 @@ def tally_part(
         "used_zero": (used & (w == 0)).astype(np.int64),
     }
     for k in schema.KINDS:
-        is_k = kind_code == kind_found.index(k) if k in kind_found else np.zeros(w.size, bool)
+        is_k = kinds.mask(k)
         cols[f"w:{k}"] = np.where(is_k, w, 0.0)
         cols[f"n:{k}"] = is_k.astype(np.int64)
     for name, col in cfg.alt_columns.items():
@@ -1027,7 +1026,7 @@ def tally_part(
         frame = pd.concat([frame, dummies.set_axis(frame.index)], axis=1)
     # grouped by integer codes, labelled after (same rows, order and sums as by the labels)
     if rows_mode:
-        code, found = kind_code, np.asarray(kind_found, dtype=object)
+        code, found = kinds.codes, np.asarray(kinds.found, dtype=object)
     else:
         code, uniques = pd.factorize(df["event"].astype(str))
         found = np.asarray([str(e) for e in uniques], dtype=object)

@@ -228,13 +228,9 @@ class WriteBehind:
 
     def close(self) -> None:
         """Wait for a pending write (its error not raised), stop the thread, close the writer."""
-        import concurrent.futures as cf
-
-        pending, self._pending = self._pending, None
+        self._pending = None
         try:
-            if pending is not None:
-                cf.wait([pending])
-            self._pool.shutdown(wait=True)
+            self._pool.shutdown(wait=True)  # returns once the pending write has finished
         finally:
             self.writer.close()
 
